@@ -118,3 +118,12 @@ class TransactionStats:
     bytes_read: int = 0
     seconds: float = 0.0
     per_role: dict[str, int] = field(default_factory=dict)
+
+
+class Clock(Protocol):
+    """Time as the bench sees it: real for hardware, simulated for the virtual bench."""
+
+    def now_s(self) -> float:
+        """Monotonic seconds."""
+    def sleep(self, seconds: float) -> None:
+        """Wait (or advance a simulated clock) by seconds."""
