@@ -1,0 +1,117 @@
+"""Sweep schedule: the frequency grid, and the settle and capture time of each point.
+
+Pure functions on plain numbers; the engine and `sweeper check` both use them, so the
+duration printed before a run is the one the engine will follow.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+from sweeper.instruments.roles import ScopeLimits
+
+#: Highest harmonic the fit projects out: the sample rate stays above twice its frequency.
+HARMONICS = 5
+#: Samples per period the window keeps at least (Nyquist for the 5th harmonic, with margin).
+MIN_SAMPLES_PER_PERIOD = 2.5 * HARMONICS
+
+
+def frequency_grid(
+    start_hz: float | None = None,
+    stop_hz: float | None = None,
+    points_per_decade: float | None = None,
+    points: int | None = None,
+    spacing: str = "log",
+    direction: str = "up",
+    frequencies_hz: list[float] | None = None,
+) -> np.ndarray:
+    """Frequencies of a sweep in measurement order, Hz.
+
+    An explicit list is used as given (sorted, duplicates removed); otherwise log or linear
+    spacing from start to stop, both ends included, with `points` in all or
+    `points_per_decade` (rounded up so that no decade gets fewer).
+    """
+    if frequencies_hz:
+        grid = np.unique(np.asarray(frequencies_hz, dtype=float))
+    else:
+        if start_hz is None or stop_hz is None:
+            raise ValueError("a sweep needs start and stop, or an explicit list of frequencies")
+        if points is None:
+            if points_per_decade is None:
+                raise ValueError("a sweep needs points or points_per_decade")
+            decades = math.log10(stop_hz / start_hz)
+            points = max(2, int(math.ceil(decades * points_per_decade - 1e-9)) + 1)
+        if spacing == "log":
+            grid = np.geomspace(start_hz, stop_hz, int(points))
+        else:
+            grid = np.linspace(start_hz, stop_hz, int(points))
+    return grid[::-1].copy() if direction == "down" else grid
+
+
+def settle_time_s(
+    frequency_hz: float,
+    settle_s: float,
+    settle_cycles: float,
+    settle_time_constants: float,
+    slowest_time_constant_s: float,
+) -> float:
+    """Wait after a frequency change: the largest of a fixed time, whole cycles and DUT time constants, s."""
+    tau = slowest_time_constant_s if math.isfinite(slowest_time_constant_s) else 0.0
+    return max(settle_s, settle_cycles / frequency_hz, settle_time_constants * tau)
+
+
+@dataclass(frozen=True)
+class Window:
+    """A capture window: sample rate (Sa/s), record length, and the cycles it holds."""
+
+    sample_rate_hz: float
+    samples: int
+    cycles: float
+
+    @property
+    def duration_s(self) -> float:
+        """Record duration, s."""
+        return self.samples / self.sample_rate_hz
+
+
+def capture_window(frequency_hz: float, min_cycles: float, min_samples: int, limits: ScopeLimits) -> Window:
+    """Shortest window holding >= min_cycles and >= min_samples within the scope's limits.
+
+    The rate is chosen so the record just holds min_cycles with min_samples samples; it is
+    raised to keep MIN_SAMPLES_PER_PERIOD and lowered to the scope's maximum. If the rate hits
+    the scope's minimum, more cycles are taken; the record never exceeds max_samples (then
+    the window holds fewer cycles than asked, which the engine flags).
+    """
+    samples = max(int(min_samples), 16)
+    rate = samples * frequency_hz / min_cycles
+    rate = max(rate, MIN_SAMPLES_PER_PERIOD * frequency_hz)
+    rate = min(rate, limits.max_sample_rate_hz)
+    rate = max(rate, limits.min_sample_rate_hz)
+    samples = max(samples, int(math.ceil(min_cycles * rate / frequency_hz)))
+    samples = min(samples, int(limits.max_samples))
+    return Window(rate, samples, samples * frequency_hz / rate)
+
+
+def samples_for_uncertainty(
+    target_u_gain_db: float | None,
+    target_u_phase_deg: float | None,
+    snr_db: float,
+) -> int:
+    """Fewest samples per channel for which a sine fit meets the target uncertainties.
+
+    From the Cramer-Rao bounds of the sine fit (see GUIDE.md): var(A)/A^2 >= 2 sigma^2/(A^2 M)
+    and var(phi) >= 2 sigma^2/(A^2 M); with SNR = A^2/(2 sigma^2), both relative-amplitude and
+    phase variance are 1/(SNR M). Two independent channels double the variance of the ratio.
+    """
+    snr = 10 ** (snr_db / 10)
+    need = 16
+    if target_u_gain_db:
+        rel = target_u_gain_db * math.log(10) / 20  # dB -> relative amplitude
+        need = max(need, math.ceil(2 / (snr * rel**2)))
+    if target_u_phase_deg:
+        rad = math.radians(target_u_phase_deg)
+        need = max(need, math.ceil(2 / (snr * rad**2)))
+    return need
