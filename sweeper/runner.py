@@ -13,13 +13,11 @@ import socket
 from collections.abc import Callable
 from dataclasses import asdict, dataclass, field
 from datetime import datetime, timezone
-from importlib import metadata as importlib_metadata
 from pathlib import Path
 from typing import TYPE_CHECKING
 
 import numpy as np
 
-import sweeper
 from sweeper.instruments.bench import open_bench
 from sweeper.instruments.roles import Capture
 from sweeper.judge import Limits, run_verdict
@@ -27,8 +25,9 @@ from sweeper.measure.engine import EngineSettings, Instruments, SweepStopped, pr
 from sweeper.measure.point import Point, Verdict
 from sweeper.measure.schedule import frequency_grid
 from sweeper.prediction import nominal_circuit, predict_limits
+from sweeper.store.catalog import Catalog, default_catalog_path
 from sweeper.store.journal import Journal
-from sweeper.store.runfile import RunWriter, file_sha256
+from sweeper.store.runfile import FINISH_EVENT, RunWriter, file_sha256, run_header
 
 if TYPE_CHECKING:
     from sweeper.plan import Plan
@@ -39,7 +38,6 @@ EXIT_BAD_INPUT = 2
 EXIT_RUN_ERROR = 3
 EXIT_INTERRUPTED = 130
 
-LIBRARIES = ("numpy", "scipy", "pandas", "h5py", "pyvisa", "pyvisa-sim", "pyvisa-py", "pydantic", "pyyaml")
 
 
 @dataclass
@@ -54,6 +52,7 @@ class RunOutcome:
     points: list[Point] = field(default_factory=list)
     error: str | None = None
     transactions: int = 0
+    catalog_error: str | None = None
 
     @property
     def exit_code(self) -> int:
@@ -98,17 +97,6 @@ def engine_settings(plan: "Plan", keep_waveforms: bool = False) -> EngineSetting
     )
 
 
-def software_versions() -> dict[str, str]:
-    """Versions of sweeper, Python and the libraries a result depends on."""
-    versions = {"sweeper": sweeper.__version__, "python": platform.python_version()}
-    for name in LIBRARIES:
-        try:
-            versions[name] = importlib_metadata.version(name)
-        except importlib_metadata.PackageNotFoundError:
-            versions[name] = "not installed"
-    return versions
-
-
 def new_run_id(serial: str, when: datetime) -> str:
     """A sortable, unique run id: UTC time, the DUT serial (filename-safe) and a random suffix."""
     safe = "".join(c if c.isalnum() or c in "-_" else "_" for c in serial)[:40] or "noserial"
@@ -132,7 +120,7 @@ def run_metadata(plan: "Plan", run_id: str, start: datetime, campaign: str | Non
     """The run's traceability record (identities are added once the bench is open)."""
     return {
         "run_id": run_id,
-        "campaign": campaign or "",
+        "campaign_id": campaign or "",
         "plan_name": plan.name,
         "plan_yaml": plan.source_text,
         "plan_sha256": plan.sha256,
@@ -144,7 +132,6 @@ def run_metadata(plan: "Plan", run_id: str, start: datetime, campaign: str | Non
         "tags": list(plan.metadata.tags),
         "bench_kind": plan.bench.kind,
         "mode": plan.bench.mode,
-        "software": software_versions(),
         "host": socket.gethostname(),
         "platform": platform.platform(),
         "start_utc": start.isoformat(timespec="seconds"),
@@ -182,13 +169,10 @@ def execute_run(
     try:
         with open_bench(plan) as bench:
             meta["instruments"] = [asdict(i) for i in bench.identities]
-            prediction = {k: np.asarray(v, dtype=float) for k, v in limits.as_arrays().items()}
-            journal = Journal.create(journal_path, {
-                "metadata": meta,
-                "planned_frequency_hz": freqs.tolist(),
-                "prediction": {k: v.tolist() for k, v in prediction.items()},
-            })
-            writer = RunWriter(run_path, meta, freqs, prediction)
+            prediction = {k: np.asarray(v, dtype=float) for k, v in limits.as_arrays().items() if k != "frequency_hz"}
+            header = run_header(meta, freqs, prediction)
+            journal = Journal.create(journal_path, header)
+            writer = RunWriter.from_header(run_path, header)
             if on_start:
                 on_start(run_id, freqs)
 
@@ -226,15 +210,30 @@ def execute_run(
             "verdict": Verdict(outcome.verdict).name,
             "points_measured": len(points),
             "points_planned": int(len(freqs)),
-            "end_utc": datetime.now(timezone.utc).isoformat(timespec="seconds"),
             "error": outcome.error or "",
         }
         if journal is not None:
-            journal.append_event("end", **summary)
+            event = journal.append_event(FINISH_EVENT, summary=summary)
             journal.close()
-        if writer is not None:
-            writer.finish(summary)
+            if writer is not None:
+                writer.finish(event["summary"], end_utc=event["time_utc"])
+                writer.close()
+                outcome.catalog_error = file_in_catalog(run_path, out_dir)
     return outcome
+
+
+def file_in_catalog(run_path: Path, out_dir: Path) -> str | None:
+    """Index a finished run file in the catalog beside it; returns an error text instead of raising.
+
+    The run file and journal are already safe on disk: a catalog failure must not lose them,
+    and `sweeper catalog rebuild` can always re-create the index from the files.
+    """
+    try:
+        with Catalog(default_catalog_path(out_dir)) as catalog:
+            catalog.add_runfile(run_path)
+    except Exception as exc:  # any catalog fault is reported, never fatal to the run
+        return f"{type(exc).__name__}: {exc}"
+    return None
 
 
 def run_file_checksum(outcome: RunOutcome) -> str:

@@ -38,7 +38,14 @@ COMPONENTS: dict[str, tuple[ComponentSpec, ...]] = {
     "rlc-bandpass": (ComponentSpec("R", R), ComponentSpec("L", L), ComponentSpec("C", C)),
     "rlc-lowpass": (ComponentSpec("R", R), ComponentSpec("L", L), ComponentSpec("C", C)),
     "rlc-highpass": (ComponentSpec("R", R), ComponentSpec("L", L), ComponentSpec("C", C)),
-    "rlc-notch": (ComponentSpec("R", R), ComponentSpec("L", L), ComponentSpec("C", C)),
+    # Notch: output across L+C; RL (optional) is the inductor's series resistance, which sets
+    # a finite notch depth.
+    "rlc-notch": (
+        ComponentSpec("R", R),
+        ComponentSpec("L", L),
+        ComponentSpec("C", C),
+        ComponentSpec("RL", R, False, 0.0),
+    ),
     # LC supply filter: series L (DCR RL), shunt C (ESR RC), load RLOAD across C.
     "lc-supply": (
         ComponentSpec("L", L),
@@ -49,4 +56,23 @@ COMPONENTS: dict[str, tuple[ComponentSpec, ...]] = {
     ),
     # General rational H(s) from zeros, poles (Hz, s-plane / 2 pi) and gain: no components.
     "rational": (),
+}
+
+
+# How each topology splits into a divider: (series arm, shunt arm); the output is taken
+# across the shunt arm, and loading (probe, load resistor) sits in parallel with it.
+# An arm is a component name or a nested ("series" | "parallel", arm, arm, ...).
+Arm = str | tuple
+
+ARMS: dict[str, tuple[Arm, Arm]] = {
+    "divider": ("R1", "R2"),
+    "rc-lowpass": ("R", "C"),
+    "cr-highpass": ("C", "R"),
+    "rl-highpass": ("R", ("series", "L", "RL")),
+    "lr-lowpass": (("series", "L", "RL"), "R"),
+    "rlc-bandpass": (("series", "L", "C"), "R"),
+    "rlc-lowpass": (("series", "R", "L"), "C"),
+    "rlc-highpass": (("series", "R", "C"), "L"),
+    "rlc-notch": ("R", ("series", "L", "C", "RL")),
+    "lc-supply": (("series", "L", "RL"), ("parallel", ("series", "C", "RC"), "RLOAD")),
 }

@@ -1,0 +1,738 @@
+"""The test plan as validated data: pydantic models with units parsed into SI.
+
+YAML keys are the aliases ("start", "amplitude"); Python attribute names carry units
+(`start_hz`, `amplitude_vpp`). Unknown keys are errors everywhere. Rules that tie several
+fields together raise a `located` error whose findings name the exact field, so the loader
+can point at the right line and column; `sweeper.plan.loader` turns them into Problems.
+"""
+
+from __future__ import annotations
+
+import difflib
+import math
+import re
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Annotated, Any, Literal
+
+from pydantic import (
+    AfterValidator,
+    BaseModel,
+    BeforeValidator,
+    ConfigDict,
+    Field,
+    PrivateAttr,
+    ValidationError,
+    model_validator,
+)
+from pydantic_core import PydanticCustomError
+
+from sweeper.circuits.catalog import COMPONENTS, ComponentSpec
+from sweeper.plan.units import (
+    AmplitudeVpp,
+    AngleDeg,
+    CapacitanceF,
+    Fraction,
+    FrequencyHz,
+    GainDb,
+    ResistanceOhm,
+    TimeS,
+    VoltageV,
+    format_quantity,
+    parse_quantity,
+)
+
+PLAN_FORMAT = 1
+LOCATED = "plan_located"  # pydantic error type carrying a list of Findings in ctx["findings"]
+
+
+class RuleError(ValueError):
+    """A value of the right type that breaks a rule; `tail` reads after the value ("must be above 0 Hz")."""
+
+    def __init__(self, value: object, tail: str) -> None:
+        self.value = value
+        self.tail = tail
+        super().__init__(f"{value!r} {tail}")
+
+
+@dataclass(frozen=True)
+class Finding:
+    """One problem found by a cross-field rule, relative to the model that raised it.
+
+    loc: path of YAML keys / list indices below that model. at: "value" points at the value
+    (or, when absent, at the parent mapping), "key" at the key. follows_value: the message
+    reads after the value as written ("must be above 0 Hz").
+    """
+
+    loc: tuple[str | int, ...]
+    message: str
+    at: Literal["value", "key"] = "value"
+    follows_value: bool = False
+
+
+def raise_located(findings: list[Finding | dict[str, Any]]) -> None:
+    """Raise one pydantic error carrying every finding (Findings or nested pydantic error dicts)."""
+    lines = []
+    for item in findings:
+        if isinstance(item, Finding):
+            lines.append(f"{'.'.join(map(str, item.loc)) or '(here)'}: {item.message}")
+        else:
+            lines.append(f"{'.'.join(map(str, item.get('loc', ()))) or '(here)'}: {item.get('msg', '')}")
+    raise PydanticCustomError(LOCATED, "{summary}", {"summary": "; ".join(lines), "findings": list(findings)})
+
+
+# ---------------------------------------------------------------------------------------------
+# Small validated types
+
+
+def _no_bool(value: object) -> object:
+    if isinstance(value, bool):
+        raise RuleError(value, "is true/false, not a number")
+    return value
+
+
+def _non_blank(value: str) -> str:
+    if not value.strip():
+        raise RuleError(value, "must not be empty")
+    return value
+
+
+def _above(limit: float, kind: str | None = None, inclusive: bool = False) -> AfterValidator:
+    shown = format_quantity(limit, kind) if kind else f"{limit:g}"
+
+    def check(value: float) -> float:
+        if value < limit or (value == limit and not inclusive) or math.isnan(value):
+            raise RuleError(value, f"must be {'at least' if inclusive else 'above'} {shown}")
+        return value
+
+    return AfterValidator(check)
+
+
+def _at_most(limit: float, kind: str | None = None) -> AfterValidator:
+    shown = format_quantity(limit, kind) if kind else f"{limit:g}"
+
+    def check(value: float) -> float:
+        if value > limit:
+            raise RuleError(value, f"must be at most {shown}")
+        return value
+
+    return AfterValidator(check)
+
+
+def _finite(value: float) -> float:
+    if not math.isfinite(value):
+        raise RuleError(value, "must be finite")
+    return value
+
+
+Int = Annotated[int, BeforeValidator(_no_bool)]
+Float = Annotated[float, BeforeValidator(_no_bool), AfterValidator(_finite)]
+Text = Annotated[str, AfterValidator(_non_blank)]
+
+
+def _component_any(value: object) -> float:
+    """A component value when the topology (and so its kind) is not known: the unit must decide."""
+    if isinstance(value, bool) or not isinstance(value, (int, float, str)):
+        raise RuleError(value, "is not a component value (expected e.g. '4.7 kOhm', '100 nF', '10 mH')")
+    results = set()
+    for kind in ("resistance", "capacitance", "inductance"):
+        try:
+            results.add(parse_quantity(value, kind))
+        except ValueError:
+            continue
+    if len(results) != 1:
+        raise RuleError(value, "is not a component value (expected e.g. '4.7 kOhm', '100 nF', '10 mH')")
+    return results.pop()
+
+
+ComponentValue = Annotated[float, BeforeValidator(_component_any)]
+
+
+def _load(value: object) -> float | None:
+    """Source load setting: high impedance (None) or a resistance in ohms."""
+    if value is None:
+        return None
+    if isinstance(value, str) and value.strip().lower() in {"high-z", "hiz", "hi-z", "high-impedance", "inf"}:
+        return None
+    try:
+        ohm = parse_quantity(value, "resistance")  # type: ignore[arg-type]
+    except ValueError:
+        raise RuleError(value, "is not a load setting (expected 'high-z' or a resistance, e.g. '50 Ohm')") from None
+    if math.isinf(ohm):
+        return None
+    if ohm <= 0:
+        raise RuleError(value, "must be above 0 Ohm (or 'high-z')")
+    return ohm
+
+
+def _root(value: object) -> complex:
+    """A zero or pole: a number in Hz (real root, s-plane / 2 pi) or a pair [re, im] in Hz."""
+    if isinstance(value, (list, tuple)):
+        if len(value) != 2:
+            raise RuleError(value, "is not a root (expected a number in Hz or a pair [re, im] in Hz)")
+        return complex(parse_quantity(value[0], "frequency"), parse_quantity(value[1], "frequency"))
+    if isinstance(value, (int, float, str)) and not isinstance(value, bool):
+        return complex(parse_quantity(value, "frequency"), 0.0)
+    raise RuleError(value, "is not a root (expected a number in Hz or a pair [re, im] in Hz)")
+
+
+Root = Annotated[complex, BeforeValidator(_root)]
+
+
+def _non_empty_list(value: list) -> list:
+    if not value:
+        raise RuleError(value, "is empty: list at least one frequency")
+    return value
+
+
+def _did_you_mean(word: str, choices: list[str]) -> str:
+    close = difflib.get_close_matches(word, choices, n=1)
+    return f"; did you mean '{close[0]}'?" if close else ""
+
+
+def _circuit_name(value: str) -> str:
+    if value not in COMPONENTS:
+        raise RuleError(
+            value,
+            f"is not a known circuit (expected one of: {', '.join(COMPONENTS)})"
+            + _did_you_mean(value, list(COMPONENTS)),
+        )
+    return value
+
+
+class _Section(BaseModel):
+    """Base of every plan section: unknown keys are errors; Python code may use attribute names."""
+
+    model_config = ConfigDict(extra="forbid", populate_by_name=True)
+
+    def _alias(self, name: str) -> str:
+        return type(self).model_fields[name].alias or name
+
+    def _given(self, name: str) -> bool:
+        return name in self.model_fields_set
+
+
+# ---------------------------------------------------------------------------------------------
+# Sections
+
+
+class Dut(_Section):
+    """The device under test."""
+
+    board: Text
+    serial: Text
+    description: str = ""
+
+
+class InstrumentRef(_Section):
+    """One instrument: its VISA resource name and the driver file that speaks its dialect."""
+
+    resource: Text
+    driver: Text
+    timeout_s: Annotated[TimeS, _above(0.0, "time")] = Field(5.0, alias="timeout")
+
+
+class Simulation(_Section):
+    """Settings of the simulated bench (used when bench.kind is 'simulated')."""
+
+    seed: Annotated[Int, _above(0, inclusive=True)] = 0
+    noise_v: Annotated[VoltageV, _above(0.0, "voltage", inclusive=True)] = Field(0.0, alias="noise")
+    distortion_frac: Annotated[Fraction, _above(0.0, "percent", inclusive=True), _at_most(1.0, "percent")] = Field(
+        0.0, alias="distortion"
+    )
+    components: dict[str, ComponentValue] = Field(default_factory=dict)  # true part values, SI
+    realtime: bool = False
+
+
+class Bench(_Section):
+    """Which instruments play which role, and how they are reached."""
+
+    kind: Literal["simulated", "visa"] = "simulated"
+    mode: Literal["waveform", "meter"] = "waveform"
+    visa_library: str | None = None
+    source: InstrumentRef | None = None
+    scope: InstrumentRef | None = None
+    meter: InstrumentRef | None = None
+    simulation: Simulation = Field(default_factory=Simulation)
+
+    @model_validator(mode="after")
+    def _roles_present(self) -> Bench:
+        findings = []
+        needed = ("source", "scope") if self.mode == "waveform" else ("source", "meter")
+        for role in needed:
+            if getattr(self, role) is None:
+                findings.append(
+                    Finding((role,), f"{self.mode} mode needs a {role}: add {role}: {{resource: ..., driver: ...}}")
+                )
+        if findings:
+            raise_located(findings)
+        return self
+
+
+class Stimulus(_Section):
+    """The sine driving the DUT input."""
+
+    amplitude_vpp: Annotated[AmplitudeVpp, _above(0.0, "amplitude")] = Field(alias="amplitude")
+    offset_v: VoltageV = Field(0.0, alias="offset")
+    load_ohm: Annotated[float | None, BeforeValidator(_load)] = Field(None, alias="load")  # None = high-Z
+    max_amplitude_vpp: Annotated[AmplitudeVpp, _above(0.0, "amplitude")] = Field(10.0, alias="max_amplitude")
+
+    @model_validator(mode="after")
+    def _within_cap(self) -> Stimulus:
+        findings = []
+        cap = format_quantity(self.max_amplitude_vpp, "amplitude")
+        if self.amplitude_vpp > self.max_amplitude_vpp:
+            findings.append(
+                Finding(
+                    ("amplitude",),
+                    f"{format_quantity(self.amplitude_vpp, 'amplitude')} is above max_amplitude ({cap}); "
+                    "the tool refuses to exceed the cap",
+                )
+            )
+        elif abs(self.offset_v) + self.amplitude_vpp / 2 > self.max_amplitude_vpp / 2:
+            findings.append(
+                Finding(
+                    ("offset",),
+                    f"offset {format_quantity(self.offset_v, 'voltage')} plus half the amplitude swings beyond "
+                    f"+-{format_quantity(self.max_amplitude_vpp / 2, 'voltage')}, half of max_amplitude ({cap})",
+                )
+            )
+        if findings:
+            raise_located(findings)
+        return self
+
+
+class Sweep(_Section):
+    """The frequency grid: start, stop and a density, or an explicit list."""
+
+    start_hz: Annotated[FrequencyHz, _above(0.0, "frequency")] | None = Field(None, alias="start")
+    stop_hz: Annotated[FrequencyHz, _above(0.0, "frequency")] | None = Field(None, alias="stop")
+    points_per_decade: Annotated[Float, _above(0.0)] | None = None
+    points: Annotated[Int, _above(2, inclusive=True)] | None = None
+    spacing: Literal["log", "linear"] = "log"
+    direction: Literal["up", "down"] = "up"
+    frequencies_hz: (
+        Annotated[list[Annotated[FrequencyHz, _above(0.0, "frequency")]], AfterValidator(_non_empty_list)] | None
+    ) = Field(None, alias="frequencies")
+
+    @model_validator(mode="after")
+    def _one_way(self) -> Sweep:
+        findings: list[Finding | dict[str, Any]] = []
+        if self.frequencies_hz is not None:
+            for name in ("start_hz", "stop_hz", "points", "points_per_decade", "spacing"):
+                if self._given(name):
+                    findings.append(
+                        Finding((self._alias(name),), "is not allowed with an explicit frequencies list", at="key")
+                    )
+            seen: set[float] = set()
+            for index, frequency_hz in enumerate(self.frequencies_hz):
+                if frequency_hz in seen:
+                    findings.append(Finding(("frequencies", index), "is listed twice", follows_value=True))
+                seen.add(frequency_hz)
+        else:
+            for name in ("start_hz", "stop_hz"):
+                if getattr(self, name) is None:
+                    findings.append(
+                        Finding(
+                            (self._alias(name),), f"missing {self._alias(name)}: give start and stop, or frequencies"
+                        )
+                    )
+            if self.points is None and self.points_per_decade is None:
+                findings.append(Finding((), "give points_per_decade or points (or an explicit frequencies list)"))
+            if self.points is not None and self.points_per_decade is not None:
+                findings.append(Finding(("points",), "give points or points_per_decade, not both", at="key"))
+            if self.points_per_decade is not None and self.spacing == "linear":
+                findings.append(
+                    Finding(("points_per_decade",), "needs log spacing; give points for linear spacing", at="key")
+                )
+            if self.start_hz is not None and self.stop_hz is not None and self.start_hz >= self.stop_hz:
+                findings.append(
+                    Finding(
+                        ("stop",),
+                        f"stop ({format_quantity(self.stop_hz, 'frequency')}) must be above start "
+                        f"({format_quantity(self.start_hz, 'frequency')})",
+                    )
+                )
+        if findings:
+            raise_located(findings)
+        return self
+
+
+class TargetUncertainty(_Section):
+    """Averaging goal: keep capturing until the standard uncertainties are below these."""
+
+    gain_db: Annotated[GainDb, _above(0.0, "gain")] | None = Field(None, alias="gain")
+    phase_deg: Annotated[AngleDeg, _above(0.0, "angle")] | None = Field(None, alias="phase")
+
+
+class Acquisition(_Section):
+    """How each point is captured: window length, settling, averaging, fit."""
+
+    min_cycles: Annotated[Float, _above(0.0)] = 8.0
+    # A four-parameter sine fit has four unknowns, so it needs at least four samples.
+    min_samples: Annotated[Int, _above(4, inclusive=True)] = 2000
+    settle_s: Annotated[TimeS, _above(0.0, "time", inclusive=True)] = Field(0.0, alias="settle_time")
+    settle_cycles: Annotated[Float, _above(0.0, inclusive=True)] = 2.0
+    settle_time_constants: Annotated[Float, _above(0.0, inclusive=True)] = 5.0
+    averages: Annotated[Int, _above(1, inclusive=True)] = 1
+    max_averages: Annotated[Int, _above(1, inclusive=True)] = 8  # raised to `averages` when not given
+    target_uncertainty: TargetUncertainty | None = None
+    autorange: bool = True
+    fit: Literal["three-parameter", "four-parameter"] = "three-parameter"
+
+    @model_validator(mode="after")
+    def _averaging(self) -> Acquisition:
+        if not self._given("max_averages"):
+            self.max_averages = max(self.max_averages, self.averages)
+        elif self.max_averages < self.averages:
+            raise_located(
+                [Finding(("max_averages",), f"must be at least averages ({self.averages})", follows_value=True)]
+            )
+        return self
+
+    @property
+    def target_gain_db(self) -> float | None:
+        """Target standard uncertainty of gain, dB; None when not set."""
+        return self.target_uncertainty.gain_db if self.target_uncertainty else None
+
+    @property
+    def target_phase_deg(self) -> float | None:
+        """Target standard uncertainty of phase, degrees; None when not set."""
+        return self.target_uncertainty.phase_deg if self.target_uncertainty else None
+
+
+class Component(_Section):
+    """A component's nominal value (SI: Ohm, F or H) and its tolerance (fraction)."""
+
+    value: ComponentValue
+    tolerance_frac: Annotated[Fraction, _above(0.0, "percent", inclusive=True), _at_most(1.0, "percent")] = Field(
+        0.0, alias="tolerance"
+    )
+
+
+class LoadingSpec(_Section):
+    """What the bench adds to the DUT: source resistance, probe, external load."""
+
+    source_resistance_ohm: Annotated[
+        ResistanceOhm, _above(0.0, "resistance", inclusive=True), AfterValidator(_finite)
+    ] = Field(0.0, alias="source_resistance")
+    probe_resistance_ohm: Annotated[ResistanceOhm, _above(0.0, "resistance")] = Field(
+        math.inf, alias="probe_resistance"
+    )
+    probe_capacitance_f: Annotated[CapacitanceF, _above(0.0, "capacitance", inclusive=True)] = Field(
+        0.0, alias="probe_capacitance"
+    )
+    load_resistance_ohm: Annotated[ResistanceOhm, _above(0.0, "resistance")] = Field(math.inf, alias="load_resistance")
+    reference: Literal["input", "source"] = "input"
+
+
+_RATIONAL_ONLY = ("zeros_hz", "poles_hz", "gain")
+
+
+def _component_findings(
+    raw: dict[Any, Any], specs: tuple[ComponentSpec, ...], circuit: str, where: tuple[str, ...], nested: bool
+) -> tuple[dict[Any, Any], list[Finding]]:
+    """Parse component values with their kinds from the topology; unknown names are findings.
+
+    nested: entries are {value, tolerance} mappings (model) rather than bare values (simulation).
+    Returns the entries with values replaced by SI floats (a placeholder where parsing failed,
+    so the remaining fields still get checked) and the findings.
+    """
+    by_name = {spec.name: spec for spec in specs}
+    names = ", ".join(by_name) or "none"
+    prepared: dict[Any, Any] = {}
+    findings: list[Finding] = []
+    for name, entry in raw.items():
+        spec = by_name.get(name)
+        if spec is None:
+            findings.append(
+                Finding(
+                    (*where, name),
+                    f"unknown component {name!r} for circuit {circuit!r} (expected: {names})"
+                    + _did_you_mean(str(name), list(by_name)),
+                    at="key",
+                )
+            )
+            continue
+        if nested and not isinstance(entry, dict):
+            entry = {"value": entry}  # shorthand: "R: 1.6 kOhm"
+        value = entry.get("value") if nested else entry
+        if nested and "value" not in entry:
+            prepared[name] = entry
+            continue
+        loc = (*where, name, "value") if nested else (*where, name)
+        try:
+            value_si = parse_quantity(value, spec.kind)
+            zero_ok = not spec.required and spec.default == 0.0
+            if value_si < 0 or (value_si == 0 and not zero_ok):
+                findings.append(
+                    Finding(
+                        loc,
+                        f"must be {'at least' if zero_ok else 'above'} {format_quantity(0, spec.kind)}",
+                        follows_value=True,
+                    )
+                )
+        except ValueError as exc:
+            findings.append(Finding(loc, str(exc)))
+            value_si = 1.0
+        prepared[name] = {**entry, "value": value_si} if nested else value_si
+    return prepared, findings
+
+
+class Model(_Section):
+    """The circuit the DUT should behave like, with component tolerances and bench loading."""
+
+    circuit: Annotated[str, AfterValidator(_circuit_name)]
+    components: dict[str, Component] = Field(default_factory=dict)
+    loading: LoadingSpec = Field(default_factory=LoadingSpec)
+    zeros_hz: list[Root] = Field(default_factory=list, alias="zeros")  # s-plane roots / 2 pi, Hz
+    poles_hz: list[Root] = Field(default_factory=list, alias="poles")
+    gain: Float = 1.0  # rational only: H(s) = gain * prod(s - 2 pi z) / prod(s - 2 pi p)
+
+    @model_validator(mode="wrap")
+    @classmethod
+    def _topology(cls, data: Any, handler: Any) -> Model:
+        if not isinstance(data, dict):
+            return handler(data)
+        findings: list[Finding | dict[str, Any]] = []
+        circuit = data.get("circuit")
+        specs = COMPONENTS.get(circuit) if isinstance(circuit, str) else None
+        raw = data.get("components")
+        if specs is not None and isinstance(raw, dict):
+            prepared, found = _component_findings(raw, specs, circuit, ("components",), nested=True)
+            findings.extend(found)
+            for spec in specs:
+                if spec.required and spec.name not in raw:
+                    findings.append(
+                        Finding(
+                            ("components", spec.name),
+                            f"circuit {circuit!r} needs component {spec.name} ({spec.kind})",
+                        )
+                    )
+            data = {**data, "components": prepared}
+        try:
+            model = handler(data)
+        except ValidationError as exc:
+            findings.extend(exc.errors())
+            model = None
+        if model is not None:
+            findings.extend(model._roots())
+        if findings:
+            raise_located(findings)
+        return model
+
+    def _roots(self) -> list[Finding]:
+        findings = []
+        if self.circuit != "rational":
+            for name in _RATIONAL_ONLY:
+                if self._given(name):
+                    findings.append(
+                        Finding((self._alias(name),), "is only for circuit 'rational'", at="key")
+                    )
+            return findings
+        for alias, roots in (("zeros", self.zeros_hz), ("poles", self.poles_hz)):
+            for index, root in enumerate(roots):
+                if root.imag != 0 and roots.count(root.conjugate()) != roots.count(root):
+                    findings.append(
+                        Finding(
+                            (alias, index),
+                            f"needs its conjugate [{root.real:g}, {-root.imag:g}] too (a real circuit has "
+                            "complex roots in conjugate pairs)",
+                            follows_value=True,
+                        )
+                    )
+                if alias == "poles" and root.real > 0:
+                    findings.append(
+                        Finding(
+                            (alias, index),
+                            "is in the right half-plane: the circuit would be unstable",
+                            follows_value=True,
+                        )
+                    )
+        return findings
+
+
+class Allowance(_Section):
+    """Measurement allowance added outside the model band."""
+
+    gain_db: Annotated[GainDb, _above(0.0, "gain", inclusive=True)] = Field(0.0, alias="gain")
+    phase_deg: Annotated[AngleDeg, _above(0.0, "angle", inclusive=True)] = Field(0.0, alias="phase")
+
+
+class FixedBand(_Section):
+    """A fixed +- band around the model."""
+
+    gain_db: Annotated[GainDb, _above(0.0, "gain", inclusive=True)] | None = Field(None, alias="gain")
+    phase_deg: Annotated[AngleDeg, _above(0.0, "angle", inclusive=True)] | None = Field(None, alias="phase")
+
+
+class Mask(_Section):
+    """Absolute limits over a frequency segment."""
+
+    from_hz: Annotated[FrequencyHz, _above(0.0, "frequency")] = Field(alias="from")
+    to_hz: Annotated[FrequencyHz, _above(0.0, "frequency")] = Field(alias="to")
+    gain_min_db: GainDb | None = Field(None, alias="gain_min")
+    gain_max_db: GainDb | None = Field(None, alias="gain_max")
+    phase_min_deg: AngleDeg | None = Field(None, alias="phase_min")
+    phase_max_deg: AngleDeg | None = Field(None, alias="phase_max")
+
+    @model_validator(mode="after")
+    def _ordered(self) -> Mask:
+        findings = []
+        if self.from_hz >= self.to_hz:
+            findings.append(
+                Finding(
+                    ("to",), f"must be above from ({format_quantity(self.from_hz, 'frequency')})", follows_value=True
+                )
+            )
+        for low, high, kind in (("gain_min_db", "gain_max_db", "gain"), ("phase_min_deg", "phase_max_deg", "angle")):
+            lo, hi = getattr(self, low), getattr(self, high)
+            if lo is not None and hi is not None and lo > hi:
+                findings.append(
+                    Finding(
+                        (self._alias(high),),
+                        f"must be at least {self._alias(low)} ({format_quantity(lo, kind)})",
+                        follows_value=True,
+                    )
+                )
+        bounds = ("gain_min_db", "gain_max_db", "phase_min_deg", "phase_max_deg")
+        if all(getattr(self, name) is None for name in bounds):
+            findings.append(Finding((), "a mask needs at least one of gain_min, gain_max, phase_min, phase_max"))
+        if findings:
+            raise_located(findings)
+        return self
+
+
+class MonteCarlo(_Section):
+    """Settings for a Monte Carlo tolerance band."""
+
+    samples: Annotated[Int, _above(2, inclusive=True)] = 2000
+    percentiles: tuple[Float, Float] = (0.5, 99.5)
+    seed: Annotated[Int, _above(0, inclusive=True)] = 0
+    distribution: Literal["uniform", "normal"] = "uniform"
+
+    @model_validator(mode="after")
+    def _percentiles(self) -> MonteCarlo:
+        low, high = self.percentiles
+        if not 0.0 <= low < high <= 100.0:
+            raise_located([Finding(("percentiles",), "must be two percentiles with 0 <= low < high <= 100")])
+        return self
+
+
+class Limits(_Section):
+    """How measured points are judged against the model."""
+
+    band: Literal["worst-case", "monte-carlo", "none"] = "worst-case"
+    allowance: Allowance = Field(default_factory=Allowance)
+    fixed: FixedBand | None = None
+    masks: list[Mask] = Field(default_factory=list)
+    monte_carlo: MonteCarlo = Field(default_factory=MonteCarlo)
+    decision_rule: Literal["simple", "guarded"] = "guarded"
+    coverage_factor: Annotated[Float, _above(0.0)] = 2.0
+
+    @property
+    def allowance_gain_db(self) -> float:
+        """Gain allowance added outside the band, dB."""
+        return self.allowance.gain_db
+
+    @property
+    def allowance_phase_deg(self) -> float:
+        """Phase allowance added outside the band, degrees."""
+        return self.allowance.phase_deg
+
+    @property
+    def fixed_gain_db(self) -> float | None:
+        """Fixed +- gain band around the model, dB; None when not set."""
+        return self.fixed.gain_db if self.fixed else None
+
+    @property
+    def fixed_phase_deg(self) -> float | None:
+        """Fixed +- phase band around the model, degrees; None when not set."""
+        return self.fixed.phase_deg if self.fixed else None
+
+
+class Metadata(_Section):
+    """Who and where, for the catalogue. operator is a role, not a person's name."""
+
+    operator: str = ""
+    station: str = ""
+    project: str = ""
+    tags: list[str] = Field(default_factory=list)
+
+
+def _format_version(value: int) -> int:
+    if value != PLAN_FORMAT:
+        raise RuleError(value, f"is not a plan format this sweeper reads (expected {PLAN_FORMAT})")
+    return value
+
+
+class Plan(_Section):
+    """A whole test plan. The loader also records its source text, checksum and path."""
+
+    plan: Annotated[Int, AfterValidator(_format_version)]
+    name: Text
+    dut: Dut
+    bench: Bench
+    stimulus: Stimulus
+    sweep: Sweep
+    acquisition: Acquisition = Field(default_factory=Acquisition)
+    model: Model
+    limits: Limits = Field(default_factory=Limits)
+    metadata: Metadata = Field(default_factory=Metadata)
+
+    _source_text: str = PrivateAttr("")
+    _sha256: str = PrivateAttr("")
+    _path: Path | None = PrivateAttr(None)
+    _locations: dict[str, tuple[int, int]] = PrivateAttr(default_factory=dict)
+
+    @model_validator(mode="wrap")
+    @classmethod
+    def _simulated_parts(cls, data: Any, handler: Any) -> Plan:
+        """Parse bench.simulation.components with the kinds of model.circuit's components."""
+        if not isinstance(data, dict):
+            return handler(data)
+        model, bench = data.get("model"), data.get("bench")
+        circuit = model.get("circuit") if isinstance(model, dict) else None
+        specs = COMPONENTS.get(circuit) if isinstance(circuit, str) else None
+        simulation = bench.get("simulation") if isinstance(bench, dict) else None
+        raw = simulation.get("components") if isinstance(simulation, dict) else None
+        if specs is None or not isinstance(raw, dict):
+            return handler(data)
+        where = ("bench", "simulation", "components")
+        prepared, findings = _component_findings(raw, specs, circuit, where, nested=False)
+        data = {**data, "bench": {**bench, "simulation": {**simulation, "components": prepared}}}
+        all_findings: list[Finding | dict[str, Any]] = list(findings)
+        try:
+            plan = handler(data)
+        except ValidationError as exc:
+            all_findings.extend(exc.errors())
+            plan = None
+        if all_findings:
+            raise_located(all_findings)
+        return plan
+
+    @property
+    def source_text(self) -> str:
+        """The plan file's text, verbatim."""
+        return self._source_text
+
+    @property
+    def sha256(self) -> str:
+        """SHA-256 of the plan file's bytes, hex."""
+        return self._sha256
+
+    @property
+    def path(self) -> Path | None:
+        """Where the plan was read from; None when loaded from text."""
+        return self._path
+
+    def location(self, field: str) -> tuple[int, int] | None:
+        """1-based (line, column) where a dotted YAML field ("sweep.stop", "limits.masks[0].to") is
+        written; for a field left to its default, where its nearest written parent is. None when
+        the plan was not loaded from YAML.
+        """
+        while field:
+            if field in self._locations:
+                return self._locations[field]
+            field = re.sub(r"(\[\d+\]|\.?[^.\[]*)$", "", field, count=1)
+        return None

@@ -1,0 +1,220 @@
+"""The virtual bench's shared state: generator settings, DUT, clock, counters, random numbers.
+
+One `SimBench` sits behind the four simulated instruments of one resource manager; the
+scope models ask it what the DUT nodes carry at the moment they acquire, so what a scope
+sees follows the generator through the DUT.
+
+Wiring (fixed): the generator drives the DUT input through its 50 Ohm source resistance;
+scope channel 1 and meter channel 1 see the DUT input node, channel 2 the DUT output node;
+the meter takes its reference frequency from the generator's sync.
+
+Transient (optional, on by default): every change of a generator setting at time t_c
+(frequency, amplitude, offset, load, output state) starts a decaying term on the DUT output
+node, residual * exp(-(t - t_c) / tau), with tau the DUT's slowest time constant and the
+residual chosen so that the output is continuous at t_c (the old steady state, plus what was
+left of earlier transients, minus the new steady state). This is exact for a first-order DUT
+and an envelope approximation for higher orders; the input node and the meter see steady
+state only. The generator's phase is continuous across frequency changes.
+"""
+
+from __future__ import annotations
+
+import math
+import zlib
+from collections import Counter
+from dataclasses import dataclass, replace
+
+import numpy as np
+
+from sweeper.sim import physics
+from sweeper.sim.clock import SimClock
+from sweeper.sim.faults import FaultAction, consult
+
+
+@dataclass
+class SimConfig:
+    """How to build a virtual bench."""
+
+    circuit: physics.DutModel  # the true DUT (a sweeper.circuits.Circuit): H from input node to output node
+    noise_v: float = 0.0  # white noise added on each scope channel, V rms
+    distortion_frac: float = 0.0  # 2nd and 3rd harmonic at the source, fraction of the fundamental
+    seed: int = 0
+    realtime: bool = False  # also really sleep when the simulated clock advances
+    transaction_latency_s: float = 0.5e-3  # simulated time each message costs, s
+    faults: object | None = None  # fault hook: callable(resource, message) -> FaultAction | None, or .on_message
+    transient: bool = True  # DUT transient after each generator change (see module docstring)
+    meter_front_end_bandwidth_hz: float = 1e6  # bandwidth over which noise_v is spread, for the meter's noise
+
+
+@dataclass(frozen=True)
+class GeneratorSettings:
+    """The function generator's state as its front panel shows it."""
+
+    function: str = "SIN"
+    frequency_hz: float = 1e3
+    amplitude_vpp: float = 0.1  # as displayed for the load setting
+    offset_v: float = 0.0  # as displayed for the load setting
+    load_ohm: float = math.inf  # load setting; inf = high impedance
+    output_on: bool = False
+
+    def emf_peak_v(self) -> float:
+        """Open-circuit EMF of the sine, peak V (0 when the output is off)."""
+        if not self.output_on:
+            return 0.0
+        return 0.5 * self.amplitude_vpp * physics.emf_per_displayed_volt(self.load_ohm)
+
+    def emf_dc_v(self) -> float:
+        """Open-circuit DC EMF, V (0 when the output is off)."""
+        if not self.output_on:
+            return 0.0
+        return self.offset_v * physics.emf_per_displayed_volt(self.load_ohm)
+
+
+@dataclass
+class Record:
+    """One simultaneous acquisition of both DUT nodes, in volts before digitising."""
+
+    volts: np.ndarray  # shape (2, N): row 0 DUT input node, row 1 DUT output node, V
+    sample_interval_s: float
+    start_s: float  # clock time of the first sample, s
+
+
+def _slowest_time_constant_s(circuit: physics.DutModel) -> float:
+    """The DUT's slowest time constant, s; 0 (no transient) when it is not a positive finite time."""
+    try:
+        tau = float(circuit.slowest_time_constant_s())
+    except (AttributeError, ValueError, ZeroDivisionError, np.linalg.LinAlgError):
+        return 0.0
+    return tau if math.isfinite(tau) and tau > 0 else 0.0
+
+
+@dataclass
+class _Transient:
+    start_s: float = 0.0
+    residual_v: float = 0.0
+
+
+class SimBench:
+    """Shared state of one virtual bench (one per resource manager).
+
+    Attributes: config, clock (SimClock), generator (GeneratorSettings), counters (messages
+    received per resource name), bytes_sent (answer bytes read per resource name), rng.
+    """
+
+    def __init__(self, config: SimConfig) -> None:
+        reference = getattr(getattr(config.circuit, "loading", None), "reference", "input")
+        if reference != "input":
+            raise ValueError(
+                f"SimConfig.circuit: loading reference {reference!r}: the bench applies the source "
+                "resistance itself, so the true DUT must be referred to its input node (reference 'input')"
+            )
+        self.config = config
+        self.clock = SimClock(realtime=config.realtime)
+        self.generator = GeneratorSettings()
+        self.counters: Counter[str] = Counter()
+        self.bytes_sent: Counter[str] = Counter()
+        self.rng = self.rng_for("bench")  # bench-level randomness (the generator's start phase)
+        self._phase_ref = (0.0, float(self.rng.uniform(0.0, 2 * math.pi)))  # (time s, phase rad)
+        self._transient = _Transient()
+        self._time_constant_s = _slowest_time_constant_s(config.circuit)
+        self._spectrum_key: tuple | None = None
+        self._spectrum: physics.NodeSpectrum | None = None
+
+    @property
+    def circuit(self) -> physics.DutModel:
+        """The true DUT."""
+        return self.config.circuit
+
+    def rng_for(self, name: str) -> np.random.Generator:
+        """An independent, reproducible random stream for one consumer (seeded by config.seed and name)."""
+        key = zlib.crc32(name.encode("utf-8"))
+        return np.random.default_rng(np.random.SeedSequence(entropy=self.config.seed, spawn_key=(key,)))
+
+    # --- the one place every message passes
+
+    def on_message(self, resource: str, message: str) -> FaultAction | None:
+        """Count a message, charge its latency to the clock and ask the fault hook about it."""
+        self.counters[resource] += 1
+        if self.config.transaction_latency_s > 0:
+            self.clock.sleep(self.config.transaction_latency_s)
+        return consult(self.config.faults, resource, message)
+
+    # --- generator
+
+    def set_generator(self, **changes: object) -> None:
+        """Change generator settings now: keeps the phase continuous and starts a DUT transient."""
+        new = replace(self.generator, **changes)
+        if new == self.generator:
+            return
+        now = self.clock.now_s()
+        phase = self.generator_phase_rad(now)
+        before = physics.node_values_v(self.spectrum(), np.array([phase]))[1, 0] + self._transient_at(now)
+        self._phase_ref = (now, phase)
+        self.generator = new
+        after = physics.node_values_v(self.spectrum(), np.array([phase]))[1, 0]
+        residual = float(before - after) if self.config.transient else 0.0
+        self._transient = _Transient(start_s=now, residual_v=residual)
+
+    def generator_phase_rad(self, time_s: float) -> float:
+        """Phase of the generator's fundamental at a clock time, rad in [0, 2 pi)."""
+        t0, phase0 = self._phase_ref
+        cycles = self.generator.frequency_hz * (time_s - t0)
+        return (phase0 + 2 * math.pi * (cycles - math.floor(cycles))) % (2 * math.pi)
+
+    def spectrum(self) -> physics.NodeSpectrum:
+        """Steady-state phasors at the DUT nodes for the current generator settings."""
+        g = self.generator
+        key = (g.frequency_hz, g.emf_peak_v(), g.emf_dc_v(), self.config.distortion_frac)
+        if key != self._spectrum_key:
+            self._spectrum = physics.node_spectrum(
+                self.circuit,
+                g.frequency_hz,
+                emf_peak_v=g.emf_peak_v(),
+                emf_dc_v=g.emf_dc_v(),
+                distortion_frac=self.config.distortion_frac,
+            )
+            self._spectrum_key = key
+        assert self._spectrum is not None
+        return self._spectrum
+
+    def _transient_at(self, time_s: float | np.ndarray) -> np.ndarray:
+        tr = self._transient
+        return physics.transient_v(tr.residual_v, self._time_constant_s, np.asarray(time_s) - tr.start_s)
+
+    # --- what the instruments measure
+
+    def acquire(
+        self,
+        samples: int,
+        sample_interval_s: float,
+        rng: np.random.Generator,
+        ac_coupled: tuple[bool, bool] = (False, False),
+    ) -> Record:
+        """Acquire both DUT nodes on one trigger; advances the clock by trigger wait + record duration.
+
+        The trigger fires at a uniformly random point within one period of the generator (the
+        random trigger phase); each channel gets independent white noise of config.noise_v rms;
+        an AC-coupled channel loses the steady-state DC level.
+        """
+        g = self.generator
+        period_s = 1.0 / g.frequency_hz
+        self.clock.sleep(float(rng.uniform(0.0, period_s)))
+        start_s = self.clock.now_s()
+        spectrum = self.spectrum()
+        phases = physics.sample_phases_rad(self.generator_phase_rad(start_s), g.frequency_hz, sample_interval_s, samples)
+        volts = physics.node_values_v(spectrum, phases)
+        if self.config.transient and self._transient.residual_v != 0.0:
+            volts[1] += self._transient_at(start_s + sample_interval_s * np.arange(samples))
+        if ac_coupled[0]:
+            volts[0] -= spectrum.dc_input_v
+        if ac_coupled[1]:
+            volts[1] -= spectrum.dc_output_v
+        if self.config.noise_v > 0:
+            volts += rng.normal(0.0, self.config.noise_v, volts.shape)
+        self.clock.sleep(samples * sample_interval_s)
+        return Record(volts=volts, sample_interval_s=sample_interval_s, start_s=start_s)
+
+    def fundamental_phasors(self) -> tuple[complex, complex]:
+        """Steady-state fundamental phasors (peak V) at the DUT input and output nodes."""
+        spectrum = self.spectrum()
+        return complex(spectrum.input_v[0]), complex(spectrum.output_v[0])

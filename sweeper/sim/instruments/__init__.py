@@ -1,0 +1,11 @@
+"""Simulated instrument models, one per file; each is the SCPI state machine behind one resource."""
+
+from sweeper.sim.instruments.generator import Generator
+from sweeper.sim.instruments.meter import Meter
+from sweeper.sim.instruments.scope_a import ScopeA
+from sweeper.sim.instruments.scope_b import ScopeB
+
+# devices.yaml device name -> model class
+MODELS = {"FG-1": Generator, "DSO-A2": ScopeA, "DSO-B2": ScopeB, "GPM-1": Meter}
+
+__all__ = ["MODELS", "Generator", "Meter", "ScopeA", "ScopeB"]
