@@ -17,7 +17,7 @@ from sweeper.instruments.roles import Capture, Clock, Meter, Scope, Source
 from sweeper.judge import Limits, judge_point
 from sweeper.measure.gainphase import GainPhase, average_gain_phase, gain_phase
 from sweeper.measure.point import Flag, Point
-from sweeper.measure.schedule import HARMONICS, Window, capture_window, settle_time_s
+from sweeper.measure.schedule import HARMONICS, Window, choose_window, settle_time_s
 from sweeper.measure.sinefit import SineFit, fit_sine, fit_sine_4
 
 #: Fraction of the vertical span the autorange aims the signal's peak-to-peak (plus offset) at.
@@ -30,6 +30,9 @@ AUTORANGE_TRIES = 6
 THD_FLAG_DB = -40.0
 #: SNR below this (dB) flags a channel as low signal.
 SNR_FLAG_DB = 20.0
+#: What changing the capture window costs in instrument transactions, s (a few LAN round trips:
+#: common practice for SCPI over a network). The engine keeps a longer window when cheaper.
+WINDOW_CHANGE_COST_S = 0.01
 
 
 @dataclass(frozen=True)
@@ -71,7 +74,7 @@ class EngineState:
     """What carries from one point to the next (ranges, last amplitudes, counts)."""
 
     spans_v: list[float] = field(default_factory=lambda: [math.nan, math.nan])
-    window: tuple[float, int] | None = None
+    window: Window | None = None
     last_frequency_hz: float = math.nan
     last_amplitudes_v: tuple[float, float] = (math.nan, math.nan)
 
@@ -225,10 +228,14 @@ def measure_with_scope(
     model_response: Callable[[float], complex],
 ) -> tuple[dict, Capture]:
     """Measure one frequency in waveform mode: autoranged captures, fits, averaging to target."""
-    window = capture_window(f, settings.min_cycles, settings.min_samples, scope.limits)
-    if state.window != (window.sample_rate_hz, window.samples):
-        scope.set_window(window.sample_rate_hz, window.samples)
-        state.window = (window.sample_rate_hz, window.samples)
+    window = choose_window(f, settings.min_cycles, settings.min_samples, scope.limits, state.window,
+                           WINDOW_CHANGE_COST_S)
+    if state.window is None or (state.window.sample_rate_hz, state.window.samples) != (
+        window.sample_rate_hz, window.samples
+    ):
+        rate, samples = scope.set_window(window.sample_rate_hz, window.samples)
+        state.window = Window(rate, samples, samples * f / rate)
+        window = state.window
     if settings.autorange or any(math.isnan(s) for s in state.spans_v):
         for ch, span in enumerate(_first_spans(f, settings, state, model_response)):
             if settings.autorange or math.isnan(state.spans_v[ch]):

@@ -95,6 +95,55 @@ def capture_window(frequency_hz: float, min_cycles: float, min_samples: int, lim
     return Window(rate, samples, samples * frequency_hz / rate)
 
 
+def ceil_125(value: float) -> float:
+    """Smallest 1-2-5 step (..., 0.5, 1, 2, 5, 10, ...) at or above value (> 0)."""
+    decade = 10.0 ** math.floor(math.log10(value))
+    for step in (1.0, 2.0, 5.0, 10.0):
+        if step * decade >= value * (1 - 1e-12):
+            return step * decade
+    return 10.0 * decade
+
+
+def window_is_valid(window: Window, frequency_hz: float, min_cycles: float, min_samples: int) -> bool:
+    """True when an existing window still holds min_cycles and min_samples and samples fast enough."""
+    cycles = window.samples * frequency_hz / window.sample_rate_hz
+    return (
+        cycles >= min_cycles * (1 - 1e-9)
+        and window.samples >= min_samples
+        and window.sample_rate_hz >= MIN_SAMPLES_PER_PERIOD * frequency_hz
+    )
+
+
+def choose_window(
+    frequency_hz: float,
+    min_cycles: float,
+    min_samples: int,
+    limits: ScopeLimits,
+    current: Window | None,
+    change_cost_s: float,
+) -> Window:
+    """The window to capture with: keep the current one unless a new one saves more than it costs.
+
+    A new window asks for a 1-2-5 sample rate at or above the shortest window's rate (most
+    scopes round rates down to 1-2-5 steps, so asking for one avoids a silent stretch of the
+    record) and the samples that rate needs for min_cycles. Changing the window costs
+    instrument transactions (change_cost_s); keeping a longer window costs capture time. The
+    cheaper of the two wins, so a sweep does not reconfigure its scope at every point.
+    """
+    shortest = capture_window(frequency_hz, min_cycles, min_samples, limits)
+    rate = min(ceil_125(shortest.sample_rate_hz), limits.max_sample_rate_hz)
+    samples = max(int(min_samples), int(math.ceil(min_cycles * rate / frequency_hz - 1e-9)))
+    samples = min(samples, int(limits.max_samples))
+    fresh = Window(rate, samples, samples * frequency_hz / rate)
+    if fresh.samples >= limits.max_samples:
+        fresh = shortest
+    if current is not None and window_is_valid(current, frequency_hz, min_cycles, min_samples):
+        kept = Window(current.sample_rate_hz, current.samples, current.samples * frequency_hz / current.sample_rate_hz)
+        if kept.duration_s <= fresh.duration_s + change_cost_s:
+            return kept
+    return fresh
+
+
 def samples_for_uncertainty(
     target_u_gain_db: float | None,
     target_u_phase_deg: float | None,

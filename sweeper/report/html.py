@@ -107,11 +107,13 @@ table.points tr.v-fail-u { background: var(--failu-bg) !important; }
 table.points tr.v-fail-u td:first-child { border-left: 6px dashed var(--failu); }
 table.points tr.v-pass-u td:first-child { border-left: 4px dotted var(--passu); }
 table.points td.verdict { white-space: nowrap; }
+table.points th.group { text-align: center; }
 .failing td, .v-fail, .v-fail-u { -webkit-print-color-adjust: exact; print-color-adjust: exact; }
 .note { color: var(--muted); font-size: .85rem; }
 details pre { background: var(--zebra); padding: .6rem; overflow-x: auto; font-size: .8rem; white-space: pre-wrap; }
 nav.toc a { color: inherit; }
 @page { margin: 14mm 12mm; }
+@page points { size: landscape; }
 @media print {
   body { max-width: none; padding: 0; font-size: 10.5pt; }
   section.run { break-before: page; page-break-before: always; }
@@ -121,7 +123,8 @@ nav.toc a { color: inherit; }
     break-inside: avoid; page-break-inside: avoid; }
   thead { display: table-header-group; }
   tr { break-inside: avoid; page-break-inside: avoid; }
-  table.points { font-size: 7.5pt; }
+  .points-part { page: points; }
+  table.points { font-size: 8pt; }
   table.points th, table.points td { padding: .1rem .25rem; }
   details > pre { display: block; }
   nav.toc a { text-decoration: none; }
@@ -274,7 +277,8 @@ def _software_table(metadata: Mapping[str, Any]) -> str:
     if not isinstance(software, Mapping) or not software:
         return '<p class="note">No software versions recorded.</p>'
     rows = "".join(f"<tr><td>{esc(name)}</td><td>{esc(version)}</td></tr>" for name, version in software.items())
-    return f'<table class="software"><thead><tr><th>software</th><th>version</th></tr></thead><tbody>{rows}</tbody></table>'
+    head = "<thead><tr><th>software</th><th>version</th></tr></thead>"
+    return f'<table class="software">{head}<tbody>{rows}</tbody></table>'
 
 
 def _limits(lo: float, hi: float, fixed: int) -> str:
@@ -282,14 +286,15 @@ def _limits(lo: float, hi: float, fixed: int) -> str:
 
 
 def _points_table(frame: pd.DataFrame, metadata: Mapping[str, Any]) -> str:
+    """One row per point in frequency order: value, expanded uncertainty, limits and margin of
+    gain and of phase, the verdict in words and the flags; failing rows carry class "failing"."""
     k = float(metadata.get("coverage_factor") or 2.0)
     order = np.argsort(frame["frequency_hz"].to_numpy(dtype=float), kind="stable")
     verdicts = point_verdicts(frame)
     failing = failing_mask(frame)
     cols = {name: frame[name].to_numpy() if name in frame else np.full(len(frame), np.nan) for name in (
-        "index", "frequency_hz", "gain_db", "u_gain_db", "model_gain_db", "gain_lo_db", "gain_hi_db", "phase_deg",
-        "u_phase_deg", "model_phase_deg", "phase_lo_deg", "phase_hi_deg", "margin_gain_db", "margin_phase_deg",
-        "flags")}
+        "index", "frequency_hz", "gain_db", "u_gain_db", "gain_lo_db", "gain_hi_db", "margin_gain_db", "phase_deg",
+        "u_phase_deg", "phase_lo_deg", "phase_hi_deg", "margin_phase_deg", "flags")}
     rows = []
     for i in order:
         v = as_verdict(int(verdicts[i])) or Verdict.NOT_JUDGED
@@ -302,24 +307,22 @@ def _points_table(frame: pd.DataFrame, metadata: Mapping[str, Any]) -> str:
             f'<td class="num">{_num(cols["frequency_hz"][i], 6)}</td>'
             f'<td class="num">{_num(cols["gain_db"][i], fixed=4)}</td>'
             f'<td class="num">{_num(k * float(cols["u_gain_db"][i]), fixed=4)}</td>'
-            f'<td class="num">{_num(cols["model_gain_db"][i], fixed=4)}</td>'
             f'<td class="num">{_limits(cols["gain_lo_db"][i], cols["gain_hi_db"][i], 3)}</td>'
+            f'<td class="num">{_num(cols["margin_gain_db"][i], fixed=4)}</td>'
             f'<td class="num">{_num(cols["phase_deg"][i], fixed=3)}</td>'
             f'<td class="num">{_num(k * float(cols["u_phase_deg"][i]), fixed=3)}</td>'
-            f'<td class="num">{_num(cols["model_phase_deg"][i], fixed=3)}</td>'
             f'<td class="num">{_limits(cols["phase_lo_deg"][i], cols["phase_hi_deg"][i], 2)}</td>'
-            f'<td class="num">{_num(cols["margin_gain_db"][i], fixed=4)}</td>'
             f'<td class="num">{_num(cols["margin_phase_deg"][i], fixed=3)}</td>'
             f'<td class="verdict">{VERDICT_SIGNS[v]} {esc(VERDICT_LABELS[v])}</td>'
             f"<td>{esc(flags_text)}</td></tr>"
         )
+    sub = (f'<th class="num">value</th><th class="num">U (k={k:g})</th><th class="num">limits</th>'
+           '<th class="num">margin</th>')
     head = (
-        "<tr><th class=\"num\">#</th><th class=\"num\">frequency (Hz)</th><th class=\"num\">gain (dB)</th>"
-        f"<th class=\"num\">U gain (dB), k={k:g}</th><th class=\"num\">model gain (dB)</th>"
-        "<th class=\"num\">gain limits (dB)</th><th class=\"num\">phase (degrees)</th>"
-        f"<th class=\"num\">U phase (degrees), k={k:g}</th><th class=\"num\">model phase (degrees)</th>"
-        "<th class=\"num\">phase limits (degrees)</th><th class=\"num\">gain margin (dB)</th>"
-        "<th class=\"num\">phase margin (degrees)</th><th>verdict</th><th>flags</th></tr>"
+        '<tr><th class="num" rowspan="2">#</th><th class="num" rowspan="2">frequency (Hz)</th>'
+        '<th colspan="4" class="group">gain (dB)</th><th colspan="4" class="group">phase (degrees)</th>'
+        '<th rowspan="2">verdict</th><th rowspan="2">flags</th></tr>'
+        f"<tr>{sub}{sub}</tr>"
     )
     return f'<table class="points"><thead>{head}</thead><tbody>{"".join(rows)}</tbody></table>'
 
@@ -334,7 +337,8 @@ def _run_section(index: int, frame: pd.DataFrame, metadata: Mapping[str, Any], f
                  image_format: str) -> str:
     verdict = run_verdict_of(frame, metadata)
     dut = metadata.get("dut") or {}
-    heading = " ".join(x for x in (text(dut.get("board")), text(dut.get("serial"))) if x) or text(metadata.get("run_id"))
+    heading = " ".join(x for x in (text(dut.get("board")), text(dut.get("serial"))) if x)
+    heading = heading or text(metadata.get("run_id"))
     plan_yaml = metadata.get("plan_yaml")
     plan_block = (
         f"<details><summary>plan text (YAML), SHA-256 {esc(metadata.get('plan_sha256'))}</summary>"
@@ -347,7 +351,7 @@ def _run_section(index: int, frame: pd.DataFrame, metadata: Mapping[str, Any], f
     )
     return (
         f'<section class="run{" first" if index == 0 else ""}" id="run-{index + 1}">'
-        f'<h1 class="run-head">{esc(heading)} <span class="note">run {esc(metadata.get("run_id"))}</span></h1>'
+        f'<h1 class="run-head">{esc(heading)}</h1><p class="note">run {esc(metadata.get("run_id"))}</p>'
         + _banner(verdict, _counts_text(frame))
         + _figure_html(fig, f"r{index + 1}-", f"Bode plot of run {text(metadata.get('run_id'))}", image_format,
                        caption)
@@ -356,7 +360,7 @@ def _run_section(index: int, frame: pd.DataFrame, metadata: Mapping[str, Any], f
         + "<h3>Instruments</h3>" + _instruments_table(metadata)
         + "<h3>Software</h3>" + _software_table(metadata)
         + plan_block
-        + f"<h2>Points ({len(frame)})</h2>" + _points_table(frame, metadata)
+        + f'<div class="points-part"><h2>Points ({len(frame)})</h2>' + _points_table(frame, metadata) + "</div>"
         + "</section>"
     )
 

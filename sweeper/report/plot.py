@@ -420,16 +420,18 @@ def overlay_figure(runs: Sequence[Run], golden_index: int | None = None, *, titl
 
 
 def difference_figure(
-    runs: Sequence[Run], golden_index: int = 0, *, title: str | None = None, coverage_factor: float = 2.0
+    runs: Sequence[Run], golden_index: int = 0, *, title: str | None = None, coverage_factor: float | None = None
 ) -> Figure:
     """Each run minus the golden run: gain difference (dB) and phase difference (degrees).
 
     The golden run is interpolated in log10(f) onto each run's frequencies (no extrapolation);
-    bars are the expanded uncertainty of the difference, k * sqrt(u_run^2 + u_golden^2).
+    bars are the expanded uncertainty of the difference, k * sqrt(u_run^2 + u_golden^2), with
+    k the golden run's coverage factor unless given (2 when neither says).
     """
     if not 0 <= golden_index < len(runs):
         raise ValueError(f"golden_index {golden_index} is out of range for {len(runs)} runs")
-    golden = runs[golden_index][0]
+    golden, golden_md = runs[golden_index]
+    k = float(coverage_factor or golden_md.get("coverage_factor") or 2.0)
     if np.count_nonzero(np.isfinite(golden["gain_db"].to_numpy(dtype=float))) < 2:
         raise ValueError("the golden run needs at least two measured points")
     fig, ax_gain, ax_phase = _new_figure()
@@ -450,26 +452,29 @@ def difference_figure(
         f, g, p = _sorted_run(frame)
         dg, dp = difference_to_reference(f, g, p, gf, gg, gp)
         order_i = np.argsort(frame["frequency_hz"].to_numpy(dtype=float), kind="stable")
-        ug = np.hypot(frame["u_gain_db"].to_numpy(dtype=float)[order_i], interpolate_log_f(f, *sorted_finite(gf, gu_gain)))
-        up = np.hypot(frame["u_phase_deg"].to_numpy(dtype=float)[order_i], interpolate_log_f(f, *sorted_finite(gf, gu_phase)))
+        ug = np.hypot(frame["u_gain_db"].to_numpy(dtype=float)[order_i],
+                      interpolate_log_f(f, *sorted_finite(gf, gu_gain)))
+        up = np.hypot(frame["u_phase_deg"].to_numpy(dtype=float)[order_i],
+                      interpolate_log_f(f, *sorted_finite(gf, gu_phase)))
         style = _series_style(n)
         bars = {"elinewidth": 0.7, "capsize": 1.5, "zorder": 3}
-        ax_gain.errorbar(f, dg, yerr=np.nan_to_num(coverage_factor * ug), label=_run_label(names[i], frame, metadata),
+        ax_gain.errorbar(f, dg, yerr=np.nan_to_num(k * ug), label=_run_label(names[i], frame, metadata),
                          **style, **bars)
-        ax_phase.errorbar(f, dp, yerr=np.nan_to_num(coverage_factor * up), **style, **bars)
+        ax_phase.errorbar(f, dp, yerr=np.nan_to_num(k * up), **style, **bars)
         all_g.append(dg)
         all_p.append(dp)
         n += 1
     _set_limits(ax_gain, all_g, 0.2)
     _set_limits(ax_phase, all_p, 2.0)
     golden_name = names[golden_index]
-    _finish(fig, title or f"difference to the golden run {golden_name} (bars \u00b1{coverage_factor:g}u)", 3,
+    _finish(fig, title or f"difference to the golden run {golden_name} (bars \u00b1{k:g}u)", 3,
             _FONT_SMALL)
     return fig
 
 
 def figure_svg(fig: Figure) -> str:
-    """The figure as SVG text (text as paths, no date stamp)."""
+    """The figure as SVG text, without a date stamp (text drawn as paths under matplotlib's default
+    svg.fonttype, so the file needs no fonts)."""
     buf = io.BytesIO()
     fig.savefig(buf, format="svg", metadata={"Date": None})
     return buf.getvalue().decode("utf-8")

@@ -39,6 +39,25 @@ StatusCode = constants.StatusCode
 DEVICES_FILE = "devices.yaml"  # package data of sweeper.sim
 
 
+def split_units(text: str) -> list[str]:
+    """Split a compound program message at ';' outside quoted strings (IEEE 488.2 message units).
+
+    Each unit is run as its own command; the answers of the queries among them are joined
+    with ';' into one response message, as IEEE 488.2 prescribes.
+    """
+    units, current, quoted = [], [], False
+    for ch in text:
+        if ch == '"':
+            quoted = not quoted
+        if ch == ";" and not quoted:
+            units.append("".join(current).strip())
+            current = []
+        else:
+            current.append(ch)
+    units.append("".join(current).strip())
+    return [u for u in units if u]
+
+
 @dataclass
 class _Reply:
     data: bytes  # the whole answer, terminator included
@@ -114,7 +133,8 @@ class SimDevice(Device):
         now = self.bench.clock.now_s()
         if action.delay_s > 0:
             self.busy_until_s = max(self.busy_until_s, now + action.delay_s)
-        answer = self._answer(text)
+        answers = [a for a in (self._answer(unit) for unit in split_units(text)) if a is not None]
+        answer = b";".join(answers) if answers else None
         if answer is None or action.drop_answer:
             return StatusCode.success
         terminated = True

@@ -122,7 +122,9 @@ def test_both_dialects_capture_the_same_signal() -> None:
 
 
 def test_transactions_per_capture_and_per_point() -> None:
-    for scope, first in (("sim-scope-a.yaml", 8), ("sim-scope-b.yaml", 14)):
+    # Dialect A selects and fetches in one compound message (IEEE 488.2 message units);
+    # dialect B selects the channel with a separate write, skipped when already selected.
+    for scope, first, steady, point in (("sim-scope-a.yaml", 5, 3, 4), ("sim-scope-b.yaml", 13, 4, 5)):
         plan = load_plan_text(plan_text(scope=scope), "t.yaml")
         with open_bench(plan) as bench:
             prepared(bench)
@@ -139,8 +141,8 @@ def test_transactions_per_capture_and_per_point() -> None:
             for _ in range(3):
                 before = count()
                 bench.scope.capture()
-                # arm + *OPC? + the selected channel's data + select the other + its data
-                assert count() - before == 5
+                # A: arm;*OPC? + two select;fetch.  B: arm;*OPC? + fetch + select + fetch
+                assert count() - before == steady
             # settings equal to the current ones are not resent
             before = count()
             bench.scope.set_range(1, 2.5)
@@ -150,10 +152,10 @@ def test_transactions_per_capture_and_per_point() -> None:
             bench.source.configure_sine(2.0, 0.0, None)
             bench.source.set_output(True)
             assert count() == before
-            # one steady-state point: new frequency (+ *OPC?), then a capture
+            # one steady-state point: new frequency;*OPC?, then a capture
             bench.source.set_frequency(2 * F_HZ)
             bench.scope.capture()
-            assert count() - before == 7
+            assert count() - before == point
 
 
 def test_window_limits_and_rounding() -> None:
@@ -241,10 +243,10 @@ def test_faults_surface_as_instrument_errors() -> None:
         prepared(bench)
         bench.scope.capture()
         faults.truncate_block("TCPIP0::sim-scope-a::5025::SOCKET", keep_fraction=0.5, contains=":WAV:DATA?")
-        with pytest.raises(MalformedResponse, match=r"':WAV:DATA\?': truncated block"):
+        with pytest.raises(MalformedResponse, match=r"':WAV:SOUR CHAN\d;:WAV:DATA\?': truncated block"):
             bench.scope.capture()
         faults.drop_answer("TCPIP0::sim-scope-a::5025::SOCKET", contains="*OPC?")
-        with pytest.raises(InstrumentTimeout, match=r"'\*OPC\?': no complete answer"):
+        with pytest.raises(InstrumentTimeout, match=r"':SING;\*OPC\?': no complete answer"):
             bench.scope.capture()
         # after a fault the interpreter forgets what it believed was selected, and recovers
         capture = bench.scope.capture()

@@ -15,7 +15,7 @@ URL_ATTRIBUTES = {"src", "href", "xlink:href", "srcset", "action", "poster", "da
 
 
 class Page(HTMLParser):
-    """Collects what the tests look at: tags, tables by class, banners, resource attributes."""
+    """Collects what the tests look at: tags, table body rows by table class, banners, attributes."""
 
     def __init__(self, text: str) -> None:
         super().__init__(convert_charrefs=True)
@@ -32,6 +32,7 @@ class Page(HTMLParser):
         self._banner_class = ""
         self._depth_banner = 0
         self._in_style = False
+        self._in_head = False
         self.feed(text)
         self.close()
 
@@ -42,11 +43,13 @@ class Page(HTMLParser):
             self.ids.append(a["id"])
         if tag == "style":
             self._in_style = True
+        if tag == "thead":
+            self._in_head = True
         if tag == "table":
             self._table.append(a.get("class", ""))
             self.tables.setdefault(self._table[-1], [])
             self.row_classes.setdefault(self._table[-1], [])
-        elif tag == "tr" and self._table:
+        elif tag == "tr" and self._table and not self._in_head:
             self._row = []
             self.row_classes[self._table[-1]].append(a.get("class", ""))
         elif tag in ("td", "th") and self._row is not None:
@@ -59,6 +62,8 @@ class Page(HTMLParser):
     def handle_endtag(self, tag: str) -> None:
         if tag == "style":
             self._in_style = False
+        if tag == "thead":
+            self._in_head = False
         if tag in ("td", "th") and self._cell is not None and self._row is not None:
             self._row.append(" ".join("".join(self._cell).split()))
             self._cell = None
@@ -127,9 +132,9 @@ def test_single_run_page(failing_run, tmp_path) -> None:
     assert page.row("meta", "plan SHA-256")[1] == metadata["plan_sha256"]
     assert page.row("meta", "run file SHA-256")[1] == sha
     assert page.row("meta", "start (UTC)")[1] == metadata["start_utc"]
-    idns = [r[2] for r in page.tables["instruments"][1:]]
+    idns = [r[2] for r in page.tables["instruments"]]
     assert idns == [i["idn"] for i in metadata["instruments"]]
-    software = dict(r for r in page.tables["software"][1:])
+    software = dict(r for r in page.tables["software"])
     assert software["numpy"] == np.__version__
 
     # Derived figures: measured -3 dB frequency near the handbook 994.7 Hz (noise 0.003 dB
@@ -138,15 +143,15 @@ def test_single_run_page(failing_run, tmp_path) -> None:
     assert float(f3[1]) == pytest.approx(994.7, rel=0.01)
 
     # Per-point table: one row per point, failing rows marked, in frequency order.
-    rows = page.tables["points"][1:]
-    classes = page.row_classes["points"][1:]
+    rows = page.tables["points"]
+    classes = page.row_classes["points"]
     assert len(rows) == len(frame)
     failing_freqs = {float(r[1]) for r, c in zip(rows, classes) if "failing" in c.split()}
     expected = set(frame.loc[frame["verdict"] >= 3, "frequency_hz"])
     assert len(failing_freqs) == len(expected) == 2
     for f_text, f_true in zip(sorted(failing_freqs), sorted(expected)):
         assert float(f_text) == pytest.approx(f_true, rel=1e-5)  # shown to 6 significant digits
-    assert all(r[12].endswith("FAIL") for r, c in zip(rows, classes) if "failing" in c.split())
+    assert all(r[10].endswith("FAIL") for r, c in zip(rows, classes) if "failing" in c.split())
     assert sum("v-fail" in c.split() for c in classes) == 2
 
     # Printing: page breaks between runs, rows kept whole, header repeated.
@@ -163,7 +168,7 @@ def test_metadata_is_escaped(run_factory) -> None:
     page = Page(text)
     assert not any(tag in ("script", "b") for tag, _ in page.tags)
     assert page.row("meta", "DUT serial")[1] == serial  # shown as text, unchanged
-    assert page.tables["instruments"][1][2] == "Simbench,<SG>,\"1\",'2'"
+    assert page.tables["instruments"][0][2] == "Simbench,<SG>,\"1\",'2'"
     assert page.row("meta", "run file SHA-256")[1] == "not given"
     imgs = [attrs for tag, attrs in page.tags if tag == "img"]
     assert len(imgs) == 1 and imgs[0]["src"].startswith("data:image/png;base64,")
