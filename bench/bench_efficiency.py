@@ -16,8 +16,8 @@ var(A) >= 2 sigma^2 / M and var(phi) >= 2 sigma^2 / (A^2 M), and for a whole num
 are independent, so the Fisher information of (A_in, phi_in, A_out, phi_out) is block diagonal
 and its inverse holds the single-channel bounds. For a function g of the parameters the bound
 is grad(g) I^-1 grad(g)^T (transformation of parameters, e.g. Kay, Fundamentals of Statistical
-Signal Processing vol. I, ch. 3), and with the off-diagonal blocks zero it is the sum of the
-channels' terms:
+Signal Processing vol. I, ch. 3, cited from memory), and with the off-diagonal blocks zero it
+is the sum of the channels' terms:
   gain_db = 20 log10(A_out / A_in):
     var >= (20 / ln 10)^2 (var(A_in) / A_in^2 + var(A_out) / A_out^2)
         = (20 / ln 10)^2 (2 sigma^2 / M) (1 / A_in^2 + 1 / A_out^2)   [dB^2]
@@ -54,7 +54,8 @@ def run(snr_db: float, trials: int, rng: np.random.Generator) -> dict[str, float
     sigma_v = math.sqrt(AMPLITUDE_IN_V**2 / 2 / 10 ** (snr_db / 10))
     frequency_hz = CYCLES / (SAMPLES * SAMPLE_INTERVAL_S)
     angle = 2 * np.pi * frequency_hz * SAMPLE_INTERVAL_S * np.arange(SAMPLES)
-    clean = np.stack([AMPLITUDE_IN_V * np.cos(angle + 0.5), AMPLITUDE_OUT_V * np.cos(angle + 0.5 + math.radians(LAG_DEG))])
+    lag_rad = math.radians(LAG_DEG)
+    clean = np.stack([AMPLITUDE_IN_V * np.cos(angle + 0.5), AMPLITUDE_OUT_V * np.cos(angle + 0.5 + lag_rad)])
     volts = clean[None] + sigma_v * rng.standard_normal((trials, 2, SAMPLES))
     fits = fit_sine(volts.reshape(2 * trials, SAMPLES), frequency_hz, SAMPLE_INTERVAL_S)
     results = [gain_phase(fits[2 * i], fits[2 * i + 1]) for i in range(trials)]
@@ -79,14 +80,19 @@ def main() -> None:
     args = parser.parse_args()
     rng = np.random.default_rng(args.seed)
     relative_sd = math.sqrt(2 / (args.trials - 1))
-    print(f"{args.trials} trials, {SAMPLES} samples, {CYCLES} cycles; a variance ratio is known to +-{relative_sd:.1%} (1 sd)")
-    header = f"{'SNR dB':>7} {'var(gain)/CRB':>14} {'var(phase)/CRB':>15} {'u/sd gain':>10} {'u/sd phase':>11} {'sd gain dB':>11} {'sd phase deg':>13}"
+    print(f"{args.trials} trials, {SAMPLES} samples, {CYCLES} cycles; "
+          f"a variance ratio is known to +-{relative_sd:.1%} (1 sd)")
+    header = (
+        f"{'SNR dB':>7} {'var(gain)/CRB':>14} {'var(phase)/CRB':>15} {'u/sd gain':>10} {'u/sd phase':>11}"
+        f" {'sd gain dB':>11} {'sd phase deg':>13}"
+    )
     print(header)
     for snr_db in SNRS_DB:
         row = run(snr_db, args.trials, rng)
         print(
             f"{row['snr_db']:7.0f} {row['gain_ratio']:14.3f} {row['phase_ratio']:15.3f} "
-            f"{row['u_gain_ratio']:10.3f} {row['u_phase_ratio']:11.3f} {row['std_gain_db']:11.2e} {row['std_phase_deg']:13.2e}"
+            f"{row['u_gain_ratio']:10.3f} {row['u_phase_ratio']:11.3f} "
+            f"{row['std_gain_db']:11.2e} {row['std_phase_deg']:13.2e}"
         )
 
 

@@ -182,6 +182,7 @@ def open_bench(
         config = SimConfig(
             circuit=sim_circuit(plan),
             noise_v=simulation.noise_v,
+            noise_range_frac=simulation.noise_range_frac,
             distortion_frac=simulation.distortion_frac,
             seed=simulation.seed,
             realtime=simulation.realtime,

@@ -55,9 +55,16 @@ def block_layout(samples: int) -> BlockLayout:
 # other processes were busy). Splitting the blocks over our own threads was tried too: it wins
 # on an idle machine and loses badly on a busy one, so the work stays on the calling thread.
 _STACK_MULTIPLY_ADDS = 2**17
+# Matrix shapes the BLAS kernels handle best: stacks of a multiple of 8 rows, bases padded with
+# zero columns to a multiple of 4 (measured: a (8, 1000) x (1000, 12) product takes ~20 % less
+# time than (8, 1000) x (1000, 11), and 8 rows beat 10 or 11).
+_ROW_MULTIPLE = 8
+_COLUMN_MULTIPLE = 4
 
 
-def block_products(rows: np.ndarray, basis: np.ndarray, with_energy: bool = False) -> tuple[np.ndarray, np.ndarray | None]:
+def block_products(
+    rows: np.ndarray, basis: np.ndarray, with_energy: bool = False
+) -> tuple[np.ndarray, np.ndarray | None]:
     """Each block of each row times the block basis, and optionally each row's sum of squares.
 
     rows (C, N) float64 and basis (K, W) with K = block_layout(N).block give (C, B, W) for the
@@ -74,7 +81,8 @@ def block_products(rows: np.ndarray, basis: np.ndarray, with_energy: bool = Fals
     energy = np.zeros(channels) if with_energy else None
     if layout.blocks:
         blocks = rows[:, :full].reshape(channels, layout.blocks, block)
-        stack = max(1, _STACK_MULTIPLY_ADDS // (block * max(width, 1)))
+        stack = _STACK_MULTIPLY_ADDS // (block * max(width, 1))
+        stack = max(1, stack - stack % _ROW_MULTIPLE if stack >= _ROW_MULTIPLE else stack)
         groups = layout.blocks // stack
         grouped = groups * stack
         if groups:
@@ -139,23 +147,25 @@ def project(
     within = np.arange(layout.block, dtype=np.float64)
     local_waves = harmonic_table(within, angle_rad, count)
     width = 1 + 2 * count + (2 * count if ramp else 0)
-    basis = np.empty((layout.block, width))
+    basis = np.zeros((layout.block, -(-width // _COLUMN_MULTIPLE) * _COLUMN_MULTIPLE))
     basis[:, 0] = 1.0
     basis[:, 1 : 1 + count] = local_waves.real
     basis[:, 1 + count : 1 + 2 * count] = local_waves.imag
     if ramp:
         basis[:, 1 + 2 * count : 1 + 3 * count] = within[:, None] * local_waves.real
-        basis[:, 1 + 3 * count :] = within[:, None] * local_waves.imag
-    per_block, energy = block_products(rows, basis, with_energy)
+        basis[:, 1 + 3 * count : 1 + 4 * count] = within[:, None] * local_waves.imag
     starts = layout.starts.astype(np.float64)
     rotation = harmonic_table(starts, angle_rad, count)
-    total = per_block[:, :, 0].sum(axis=1)
     with np.errstate(invalid="ignore", over="ignore"):  # non-finite samples propagate as nan
+        per_block, energy = block_products(rows, basis, with_energy)
+        total = per_block[:, :, 0].sum(axis=1)
         local = per_block[:, :, 1 : 1 + count] + 1j * per_block[:, :, 1 + count : 1 + 2 * count]
         exp = np.einsum("cml,ml->cl", local, rotation)
         ramp_exp = None
         if ramp:
-            local_ramp = per_block[:, :, 1 + 2 * count : 1 + 3 * count] + 1j * per_block[:, :, 1 + 3 * count :]
+            ramp_cos = per_block[:, :, 1 + 2 * count : 1 + 3 * count]
+            ramp_sin = per_block[:, :, 1 + 3 * count : 1 + 4 * count]
+            local_ramp = ramp_cos + 1j * ramp_sin
             shifted = local_ramp + starts[None, :, None] * local
             ramp_exp = np.einsum("cml,ml->cl", shifted, rotation)
     return Projections(total=total, exp=exp, ramp_exp=ramp_exp, energy=energy)

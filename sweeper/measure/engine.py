@@ -17,13 +17,13 @@ from sweeper.instruments.roles import Capture, Clock, Meter, Scope, Source
 from sweeper.judge import Limits, judge_point
 from sweeper.measure.gainphase import GainPhase, average_gain_phase, gain_phase
 from sweeper.measure.point import Flag, Point
-from sweeper.measure.schedule import HARMONICS, Window, choose_window, settle_time_s
+from sweeper.measure.schedule import HARMONICS, Window, choose_window, incoherent_frequency_hz, settle_time_s
 from sweeper.measure.sinefit import SineFit, fit_sine, fit_sine_4
 
 #: Fraction of the vertical span the autorange aims the signal's peak-to-peak (plus offset) at.
-RANGE_FILL = 0.8
+RANGE_FILL = 0.9
 #: Below this fraction of the span the signal is "too small" and a smaller range is tried.
-RANGE_SMALL = 0.3
+RANGE_SMALL = 0.35
 #: Autorange re-captures per acquisition before giving up and flagging.
 AUTORANGE_TRIES = 6
 #: THD above this (dB) flags a point as distorted (1 %: common practice for a linear DUT test).
@@ -131,12 +131,17 @@ def sweep(
         if should_stop is not None and should_stop():
             raise SweepStopped(f"stopped before point {index}")
         f = float(frequencies_hz[index])
+        window = None
+        if instruments.scope is not None:
+            window = apply_window(f, settings, instruments.scope, state)
+            f = incoherent_frequency_hz(f, window.sample_rate_hz, window.samples)
         instruments.source.set_frequency(f)
         instruments.clock.sleep(
             settle_time_s(f, settings.settle_s, settings.settle_cycles, settings.settle_time_constants,
                           settings.slowest_time_constant_s)
         )
-        if instruments.meter is not None and instruments.scope is None:
+        if window is None:
+            assert instruments.meter is not None
             values, capture = measure_with_meter(f, settings, instruments.meter), None
         else:
             assert instruments.scope is not None
@@ -220,14 +225,8 @@ def _acquire(
     return capture, fits, retries, flags
 
 
-def measure_with_scope(
-    f: float,
-    settings: EngineSettings,
-    scope: Scope,
-    state: EngineState,
-    model_response: Callable[[float], complex],
-) -> tuple[dict, Capture]:
-    """Measure one frequency in waveform mode: autoranged captures, fits, averaging to target."""
+def apply_window(f: float, settings: EngineSettings, scope: Scope, state: EngineState) -> Window:
+    """Choose the capture window for f and send it to the scope only when it changes."""
     window = choose_window(f, settings.min_cycles, settings.min_samples, scope.limits, state.window,
                            WINDOW_CHANGE_COST_S)
     if state.window is None or (state.window.sample_rate_hz, state.window.samples) != (
@@ -235,7 +234,20 @@ def measure_with_scope(
     ):
         rate, samples = scope.set_window(window.sample_rate_hz, window.samples)
         state.window = Window(rate, samples, samples * f / rate)
-        window = state.window
+    return state.window
+
+
+def measure_with_scope(
+    f: float,
+    settings: EngineSettings,
+    scope: Scope,
+    state: EngineState,
+    model_response: Callable[[float], complex],
+) -> tuple[dict, Capture]:
+    """Measure one frequency in waveform mode (window already set): autoranged captures, fits,
+    averaging to the target uncertainty."""
+    window = state.window
+    assert window is not None
     if settings.autorange or any(math.isnan(s) for s in state.spans_v):
         for ch, span in enumerate(_first_spans(f, settings, state, model_response)):
             if settings.autorange or math.isnan(state.spans_v[ch]):

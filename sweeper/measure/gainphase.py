@@ -57,7 +57,8 @@ def average_gain_phase(items: Sequence[GainPhase]) -> GainPhase:
     Gain: arithmetic mean (dB). Phase: circular mean, the angle of sum exp(j phi), wrapped to
     (-180, 180], so results on both sides of +-180 degrees average correctly.
 
-    Uncertainty of each mean: the larger of two evaluations (GUM, JCGM 100:2008).
+    Uncertainty of each mean: the larger of two evaluations (GUM, JCGM 100:2008; clause
+    numbers below quoted from memory).
     - Propagated (GUM 5.1.2, independent items): u = sqrt(sum u_i^2) / n, i.e. the rms of the
       individual u over sqrt(n). It rests on each capture's own noise estimate from its fit.
     - Experimental standard deviation of the mean (GUM 4.2.3, type A over captures):

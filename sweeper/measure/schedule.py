@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
+from fractions import Fraction
 
 import numpy as np
 
@@ -142,6 +143,29 @@ def choose_window(
         if kept.duration_s <= fresh.duration_s + change_cost_s:
             return kept
     return fresh
+
+
+def incoherent_frequency_hz(frequency_hz: float, sample_rate_hz: float, samples: int) -> float:
+    """A stimulus frequency, within 1/samples (relative) of the one asked for, whose record
+    visits `samples` distinct phases.
+
+    When the sample rate is a simple multiple of the frequency (a decade frequency on a 1-2-5
+    rate, say 10 kHz at 500 kSa/s) every period is sampled at the same few phases, so an ADC's
+    quantisation error repeats identically and biases the fit instead of averaging out. IEEE
+    Std 1241 asks for records whose cycle count and sample count share no factor for the same
+    reason. With frequency/rate = p/q in lowest terms over the record, shifting the frequency by
+    the relative amount 1/(q J) (J = cycles in the record) slides the q phase classes by one class
+    spacing across the record, filling it evenly. Frequencies already incoherent are returned as
+    they are.
+    """
+    ratio = Fraction(frequency_hz / sample_rate_hz).limit_denominator(samples)
+    if abs(float(ratio) - frequency_hz / sample_rate_hz) > 1e-12 * frequency_hz / sample_rate_hz:
+        return frequency_hz
+    q = ratio.denominator
+    if q >= samples // 2:
+        return frequency_hz
+    cycles = samples * frequency_hz / sample_rate_hz
+    return frequency_hz * (1.0 + 1.0 / (q * cycles))
 
 
 def samples_for_uncertainty(

@@ -240,6 +240,10 @@ class Simulation(_Section):
     distortion_frac: Annotated[Fraction, _above(0.0, "percent", inclusive=True), _at_most(1.0, "percent")] = Field(
         0.0, alias="distortion"
     )
+    # front-end noise of each scope channel as a fraction of its full-scale span, rms
+    noise_range_frac: Annotated[Fraction, _above(0.0, "percent", inclusive=True), _at_most(1.0, "percent")] = Field(
+        0.0, alias="range_noise"
+    )
     components: dict[str, ComponentValue] = Field(default_factory=dict)  # true part values, SI
     realtime: bool = False
 

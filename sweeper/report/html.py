@@ -118,7 +118,7 @@ nav.toc a { color: inherit; }
   body { max-width: none; padding: 0; font-size: 10.5pt; }
   section.run { break-before: page; page-break-before: always; }
   section.run.first { break-before: auto; page-break-before: auto; }
-  h2, h3 { break-after: avoid; page-break-after: avoid; }
+  h1, h2, h3, p.note, .banner { break-after: avoid; page-break-after: avoid; }
   .banner, figure.plot, table.figures, table.meta, table.instruments, table.software {
     break-inside: avoid; page-break-inside: avoid; }
   thead { display: table-header-group; }
@@ -157,7 +157,8 @@ def inline_svg(svg: str, prefix: str, label: str) -> str:
     """Matplotlib SVG text made fit to sit inside an HTML page.
 
     Drops the XML prologue, comments, the metadata block, namespace declarations (the HTML
-    parser supplies them) and the fixed size; prefixes every id so several plots on one page do not clash.
+    parser supplies them) and the fixed size; prefixes every id so that several plots on one
+    page do not clash.
     """
     svg = svg[svg.index("<svg"):]
     svg = re.sub(r"<!--.*?-->|<metadata>.*?</metadata>", "", svg, flags=re.S)
@@ -220,8 +221,9 @@ def _figures_table(frame: pd.DataFrame, metadata: Mapping[str, Any]) -> str:
     )
 
 
-def _meta_table(metadata: Mapping[str, Any], file_sha256: str) -> str:
+def _meta_table(frame: pd.DataFrame, metadata: Mapping[str, Any], file_sha256: str) -> str:
     dut = metadata.get("dut") or {}
+    planned = int(np.size((metadata.get("prediction") or {}).get("frequency_hz", [])))
     summary = metadata.get("summary") or {}
     k = metadata.get("coverage_factor", summary.get("coverage_factor"))
     rule = metadata.get("decision_rule", summary.get("decision_rule"))
@@ -229,6 +231,7 @@ def _meta_table(metadata: Mapping[str, Any], file_sha256: str) -> str:
         ("run id", esc(metadata.get("run_id")), ""),
         ("campaign", esc(metadata.get("campaign") or metadata.get("campaign_id")), ""),
         ("status", esc(run_status(metadata)), ""),
+        ("points measured", f"{len(frame)} of {planned} planned" if planned else str(len(frame)), ""),
         ("decision rule", esc(rule), ""),
         ("coverage factor k", esc(k), ""),
         ("DUT board", esc(dut.get("board")), ""),
@@ -334,7 +337,7 @@ def _counts_text(frame: pd.DataFrame) -> str:
 
 
 def _run_section(index: int, frame: pd.DataFrame, metadata: Mapping[str, Any], file_sha256: str,
-                 image_format: str) -> str:
+                 image_format: str, first_page: bool) -> str:
     verdict = run_verdict_of(frame, metadata)
     dut = metadata.get("dut") or {}
     heading = " ".join(x for x in (text(dut.get("board")), text(dut.get("serial"))) if x)
@@ -350,13 +353,13 @@ def _run_section(index: int, frame: pd.DataFrame, metadata: Mapping[str, Any], f
         "band hatched; failing points drawn as filled crosses (FAIL) and diamonds (FAIL?); phase unwrapped."
     )
     return (
-        f'<section class="run{" first" if index == 0 else ""}" id="run-{index + 1}">'
+        f'<section class="run{" first" if first_page else ""}" id="run-{index + 1}">'
         f'<h1 class="run-head">{esc(heading)}</h1><p class="note">run {esc(metadata.get("run_id"))}</p>'
         + _banner(verdict, _counts_text(frame))
         + _figure_html(fig, f"r{index + 1}-", f"Bode plot of run {text(metadata.get('run_id'))}", image_format,
                        caption)
         + "<h2>Derived figures</h2>" + _figures_table(frame, metadata)
-        + "<h2>Run record</h2>" + _meta_table(metadata, file_sha256)
+        + "<h2>Run record</h2>" + _meta_table(frame, metadata, file_sha256)
         + "<h3>Instruments</h3>" + _instruments_table(metadata)
         + "<h3>Software</h3>" + _software_table(metadata)
         + plan_block
@@ -376,13 +379,15 @@ def _set_header(runs: Sequence[ReportRun], golden_index: int | None, image_forma
         rows.append(
             f'<tr class="{VERDICT_CLASSES[v]}"><td><a href="#run-{i + 1}">{esc(names[i])}</a></td>'
             f"<td>{esc(md.get('run_id'))}</td><td>{esc(md.get('start_utc'))}</td>"
-            f"<td>{VERDICT_SIGNS[v]} {esc(VERDICT_LABELS[v])}</td><td>{esc(_counts_text(frame))}</td></tr>"
+            f"<td>{VERDICT_SIGNS[v]} {esc(VERDICT_LABELS[v])}</td>"
+            f'<td class="num">{int(np.count_nonzero(failing_mask(frame)))} of {len(frame)}</td></tr>'
         )
     parts = [
         f"<header><h1>Sweep report: {len(runs)} runs</h1>",
         _banner(overall, f"{n_fail} of {len(runs)} runs failing"),
         '<nav class="toc"><table class="runs"><thead><tr><th>run</th><th>run id</th><th>start (UTC)</th>'
-        "<th>verdict</th><th>points</th></tr></thead><tbody>" + "".join(rows) + "</tbody></table></nav>",
+        '<th>verdict</th><th class="num">failing points</th></tr></thead><tbody>'
+        + "".join(rows) + "</tbody></table></nav>",
         _figure_html(overlay_figure(pairs, golden_index), "overlay-", "all runs overlaid", image_format,
                      "All runs overlaid on one Bode plot; tolerance band of the "
                      + ("golden run." if golden_index is not None else "first run.")),
@@ -416,7 +421,7 @@ def render_html(
         else:
             title = f"Sweep report: {len(runs)} runs"
     body = [] if len(runs) == 1 else [_set_header(runs, golden_index, image_format)]
-    body += [_run_section(i, frame, md, sha, image_format) for i, (frame, md, sha) in enumerate(runs)]
+    body += [_run_section(i, frame, md, sha, image_format, len(runs) == 1) for i, (frame, md, sha) in enumerate(runs)]
     return (
         '<!DOCTYPE html>\n<html lang="en"><head><meta charset="utf-8">'
         '<meta name="viewport" content="width=device-width, initial-scale=1">'

@@ -186,14 +186,19 @@ def _phase_ticks(ax: Axes) -> None:
         ax.yaxis.set_major_locator(MultipleLocator(45 if span <= 360 else 90 if span <= 900 else 180))
 
 
+def plain(text: str) -> str:
+    """Text shown as typed: '$' would otherwise start matplotlib's math mode."""
+    return text.replace("$", r"\$")
+
+
 def _verdict_title(frame: pd.DataFrame, metadata: Mapping[str, Any], title: str | None) -> str:
     if title is not None:
-        return title
+        return plain(title)
     dut = metadata.get("dut") or {}
     who = " ".join(str(x) for x in (dut.get("board"), dut.get("serial")) if x)
     verdict = VERDICT_LABELS[run_verdict_of(frame, metadata)]
     parts = [p for p in (who, str(metadata.get("run_id") or ""), f"verdict {verdict}") if p]
-    return "  |  ".join(parts)
+    return plain("  |  ".join(parts))
 
 
 def _culprit_masks(frame: pd.DataFrame, chosen: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -356,8 +361,9 @@ def run_names(runs: Sequence[Run]) -> list[str]:
     return [str(md.get("run_id") or f"run {i + 1}") for i, (_, md) in enumerate(runs)]
 
 
+
 def _run_label(name: str, frame: pd.DataFrame, metadata: Mapping[str, Any]) -> str:
-    label = f"{name}: {VERDICT_LABELS[run_verdict_of(frame, metadata)]}"
+    label = f"{plain(name)}: {VERDICT_LABELS[run_verdict_of(frame, metadata)]}"
     failing = int(np.count_nonzero(failing_mask(frame)))
     return f"{label} ({failing} failing)" if failing else label
 
@@ -415,7 +421,7 @@ def overlay_figure(runs: Sequence[Run], golden_index: int | None = None, *, titl
     _set_limits(ax_gain, gains, 1.0)
     _set_limits(ax_phase, phases, 10.0)
     _phase_ticks(ax_phase)
-    _finish(fig, title or f"{len(runs)} runs overlaid", 3 if len(runs) > 2 else 2, _FONT_SMALL)
+    _finish(fig, plain(title) if title else f"{len(runs)} runs overlaid", 3 if len(runs) > 2 else 2, _FONT_SMALL)
     return fig
 
 
@@ -467,7 +473,7 @@ def difference_figure(
     _set_limits(ax_gain, all_g, 0.2)
     _set_limits(ax_phase, all_p, 2.0)
     golden_name = names[golden_index]
-    _finish(fig, title or f"difference to the golden run {golden_name} (bars \u00b1{k:g}u)", 3,
+    _finish(fig, plain(title or f"difference to the golden run {golden_name} (bars \u00b1{k:g}u)"), 3,
             _FONT_SMALL)
     return fig
 

@@ -37,6 +37,7 @@ class SimConfig:
 
     circuit: physics.DutModel  # the true DUT (a sweeper.circuits.Circuit): H from input node to output node
     noise_v: float = 0.0  # white noise added on each scope channel, V rms
+    noise_range_frac: float = 0.0  # front-end noise proportional to each channel's full-scale span, rms fraction
     distortion_frac: float = 0.0  # 2nd and 3rd harmonic at the source, fraction of the fundamental
     seed: int = 0
     realtime: bool = False  # also really sleep when the simulated clock advances
@@ -189,12 +190,14 @@ class SimBench:
         sample_interval_s: float,
         rng: np.random.Generator,
         ac_coupled: tuple[bool, bool] = (False, False),
+        full_scale_v: tuple[float, float] = (0.0, 0.0),
     ) -> Record:
         """Acquire both DUT nodes on one trigger; advances the clock by trigger wait + record duration.
 
         The trigger fires at a uniformly random point within one period of the generator (the
-        random trigger phase); each channel gets independent white noise of config.noise_v rms;
-        an AC-coupled channel loses the steady-state DC level.
+        random trigger phase); each channel gets independent white noise of config.noise_v rms
+        plus config.noise_range_frac of its full-scale span (a scope front end's noise grows with
+        its volts/division setting); an AC-coupled channel loses the steady-state DC level.
         """
         g = self.generator
         period_s = 1.0 / g.frequency_hz
@@ -209,8 +212,9 @@ class SimBench:
             volts[0] -= spectrum.dc_input_v
         if ac_coupled[1]:
             volts[1] -= spectrum.dc_output_v
-        if self.config.noise_v > 0:
-            volts += rng.normal(0.0, self.config.noise_v, volts.shape)
+        if self.config.noise_v > 0 or self.config.noise_range_frac > 0:
+            sigma = np.hypot(self.config.noise_v, self.config.noise_range_frac * np.asarray(full_scale_v, dtype=float))
+            volts += rng.normal(0.0, 1.0, volts.shape) * sigma[:, None]
         self.clock.sleep(samples * sample_interval_s)
         return Record(volts=volts, sample_interval_s=sample_interval_s, start_s=start_s)
 

@@ -45,7 +45,8 @@ def test_power_sums_match_direct_sums(samples: int, power: int) -> None:
     expected = ((n**power)[:, None] * np.exp(1j * np.outer(n, angles))).sum(axis=0)
     # Tolerance: the largest angle, 7.5 rad x 1e4 samples, is rounded at ~1e-11 rad per term in
     # the reference; relative to the largest possible sum N**(p+1) that stays below 1e-10.
-    np.testing.assert_allclose(power_sums(samples, angles, power), expected, rtol=0, atol=1e-10 * samples ** (power + 1))
+    tolerance = 1e-10 * samples ** (power + 1)
+    np.testing.assert_allclose(power_sums(samples, angles, power), expected, rtol=0, atol=tolerance)
 
 
 @pytest.mark.parametrize("samples", LENGTHS)

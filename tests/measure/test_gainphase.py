@@ -32,7 +32,9 @@ def fit_of(amplitude_v: float, phase_deg: float, u_amplitude_v: float = 0.0, u_p
     )
 
 
-def capture(samples: int, frequency_hz: float, amplitudes_v: tuple[float, float], phases_deg: tuple[float, float]) -> np.ndarray:
+def capture(
+    samples: int, frequency_hz: float, amplitudes_v: tuple[float, float], phases_deg: tuple[float, float]
+) -> np.ndarray:
     n = np.arange(samples)
     w = 2 * np.pi * frequency_hz * SAMPLE_INTERVAL_S
     return np.stack([a * np.cos(w * n + np.radians(p)) for a, p in zip(amplitudes_v, phases_deg)])
@@ -80,7 +82,9 @@ def test_rc_lowpass_against_scipy_freqs(frequency_ratio: float) -> None:
         (10.0, 10.0, 0.0),
     ],
 )
-def test_phase_difference_wraps_into_the_half_open_interval(phase_in_deg: float, phase_out_deg: float, expected_deg: float) -> None:
+def test_phase_difference_wraps_into_the_half_open_interval(
+    phase_in_deg: float, phase_out_deg: float, expected_deg: float
+) -> None:
     # Convention (project, common practice): phase of output relative to input, (-180, 180].
     result = gain_phase(fit_of(1.0, phase_in_deg), fit_of(1.0, phase_out_deg))
     assert result.phase_deg == pytest.approx(expected_deg, abs=1e-12)
@@ -97,7 +101,9 @@ def test_wrap_phase_deg_values() -> None:
 
 def test_wrap_phase_deg_never_leaves_the_interval() -> None:
     rng = np.random.default_rng(3)
-    values = np.concatenate([rng.uniform(-1e4, 1e4, 10_000), 180.0 + 360.0 * np.arange(-20, 21), np.nextafter(180.0, 181.0) + np.zeros(1)])
+    odd_multiples_of_180 = 180.0 + 360.0 * np.arange(-20, 21)
+    just_above_180 = np.array([np.nextafter(180.0, 181.0)])
+    values = np.concatenate([rng.uniform(-1e4, 1e4, 10_000), odd_multiples_of_180, just_above_180])
     wrapped = wrap_phase_deg(values)
     assert np.all(wrapped > -180.0) and np.all(wrapped <= 180.0)
     # Same angle: the difference is a whole number of turns (up to rounding of 1e4-degree inputs).
@@ -145,6 +151,7 @@ def test_gain_needs_positive_amplitudes() -> None:
 def test_average_of_identical_items_uses_the_propagated_uncertainty() -> None:
     # GUM 5.1.2: the mean of n independent items with equal u has u / sqrt(n); no scatter, so
     # the experimental standard deviation of the mean (GUM 4.2.3) is zero and loses.
+    # (JCGM 100:2008; clause numbers quoted from memory.)
     item = GainPhase(gain_db=-3.0, phase_deg=-45.0, u_gain_db=0.02, u_phase_deg=0.2)
     result = average_gain_phase([item] * 4)
     assert result.gain_db == pytest.approx(-3.0)
@@ -154,7 +161,8 @@ def test_average_of_identical_items_uses_the_propagated_uncertainty() -> None:
 
 
 def test_average_with_scatter_uses_the_standard_deviation_of_the_mean() -> None:
-    # GUM 4.2.3: s(q)/sqrt(n). Gains 0, 1, 2 dB: s = 1, so u = 1/sqrt(3) (by hand).
+    # GUM 4.2.3 (clause number from memory): s(q)/sqrt(n). Gains 0, 1, 2 dB: s = 1, so
+    # u = 1/sqrt(3) (by hand).
     items = [GainPhase(gain_db=g, phase_deg=0.0, u_gain_db=0.01, u_phase_deg=0.01) for g in (0.0, 1.0, 2.0)]
     result = average_gain_phase(items)
     assert result.gain_db == pytest.approx(1.0)

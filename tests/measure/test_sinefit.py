@@ -117,8 +117,8 @@ def test_white_noise_variances_sit_at_the_cramer_rao_bound() -> None:
 
 
 def test_thd_of_known_harmonics() -> None:
-    # THD definition (IEEE Std 1241): power of harmonics 2..H over the fundamental,
-    # THD = 10 log10((a2^2 + a3^2) / a1^2) for peak amplitudes a_k.
+    # THD definition (IEEE Std 1241, quoted from memory): power of harmonics 2..H over the
+    # fundamental, THD = 10 log10((a2^2 + a3^2) / a1^2) for peak amplitudes a_k.
     samples, cycles = 4096, 20.3
     frequency_hz = cycles / (samples * SAMPLE_INTERVAL_S)
     a1, a2, a3 = 1.0, 0.01, 0.003
@@ -195,7 +195,8 @@ def test_four_parameter_fit_with_noise_is_efficient_and_reports_its_uncertainty(
     true_hz = guess_hz * 1.001
     rng = np.random.default_rng(99)
     clean = sine(samples, true_hz, amplitude_v, 30.0)
-    fits = [fit_sine_4(clean + sigma_v * rng.standard_normal(samples), guess_hz, SAMPLE_INTERVAL_S) for _ in range(trials)]
+    noisy = clean + sigma_v * rng.standard_normal((trials, samples))
+    fits = [fit_sine_4(row, guess_hz, SAMPLE_INTERVAL_S) for row in noisy]
     omega = 2 * np.pi * SAMPLE_INTERVAL_S * np.array([f.frequency_hz for f in fits])
     phases = np.radians([f.phase_deg for f in fits])
     eta = amplitude_v**2 / (2 * sigma_v**2)

@@ -132,6 +132,7 @@ def test_single_run_page(failing_run, tmp_path) -> None:
     assert page.row("meta", "plan SHA-256")[1] == metadata["plan_sha256"]
     assert page.row("meta", "run file SHA-256")[1] == sha
     assert page.row("meta", "start (UTC)")[1] == metadata["start_utc"]
+    assert page.row("meta", "points measured")[1] == "60 of 60 planned"
     idns = [r[2] for r in page.tables["instruments"]]
     assert idns == [i["idn"] for i in metadata["instruments"]]
     software = dict(r for r in page.tables["software"])
@@ -157,10 +158,11 @@ def test_single_run_page(failing_run, tmp_path) -> None:
     # Printing: page breaks between runs, rows kept whole, header repeated.
     assert "@media print" in page.style and "break-before: page" in page.style
     assert "break-inside: avoid" in page.style and "table-header-group" in page.style
+    assert re.findall(r'<section class="(run[^"]*)"', text) == ["run first"]
 
 
 def test_metadata_is_escaped(run_factory) -> None:
-    serial = '<script>alert("x")</script>&<b>'
+    serial = '<script>alert("x")</script>&<b> $x^$'  # '$...$' would be matplotlib math text (here invalid)
     frame, metadata = run_factory(serial=serial)
     metadata["instruments"][0]["idn"] = "Simbench,<SG>,\"1\",'2'"
     metadata["operator"] = "<img src=http://example.invalid/x.png>"
@@ -201,8 +203,8 @@ def test_set_of_runs(run_factory) -> None:
     assert text.count("<svg") == 5
     assert len(page.ids) == len(set(page.ids))
     assert sum("failing" in c.split() for c in page.row_classes["points"]) == 1
-    # The first run starts the page; each further run starts a new printed page.
-    assert re.findall(r'<section class="(run[^"]*)"', text) == ["run first", "run", "run"]
+    # After the summary, each run starts a new printed page (a lone run starts the first page).
+    assert re.findall(r'<section class="(run[^"]*)"', text) == ["run", "run", "run"]
 
 
 def test_empty_set_is_refused() -> None:

@@ -110,6 +110,7 @@ class ScopeA(ScpiInstrument):
             1.0 / self.sample_rate_hz,
             self.rng,
             ac_coupled=(self.coupling[0] == "AC", self.coupling[1] == "AC"),
+            full_scale_v=(DIVISIONS * self.scale_v[0], DIVISIONS * self.scale_v[1]),
         )
         full_scale = (DIVISIONS * self.scale_v[0], DIVISIONS * self.scale_v[1])
         self.capture = digitise(record, full_scale, (self.offset_v[0], self.offset_v[1]))

@@ -126,6 +126,7 @@ class ScopeB(ScpiInstrument):
             interval_s,
             self.rng,
             ac_coupled=(self.coupling[0] == "AC", self.coupling[1] == "AC"),
+            full_scale_v=(DIVISIONS * self.volts_per_div[0], DIVISIONS * self.volts_per_div[1]),
         )
         full_scale = (DIVISIONS * self.volts_per_div[0], DIVISIONS * self.volts_per_div[1])
         centre = (-self.position_div[0] * self.volts_per_div[0], -self.position_div[1] * self.volts_per_div[1])
