@@ -19,7 +19,7 @@ from sweeper.measure.point import Flag, Point, Verdict
 from sweeper.plan import PlanError, format_quantity, load_plan
 
 console = Console(highlight=False)
-err_console = Console(stderr=True, highlight=False)
+err_console = Console(stderr=True, highlight=False, soft_wrap=True)
 
 SAFETY = (
     "Safety: mains-powered DUTs and instruments can carry lethal voltages. Most bench scopes tie "
@@ -314,3 +314,59 @@ def catalog_rebuild(runs_dir: str) -> None:
         console.print(f"catalog rebuilt: {cat.count()} run(s)")
     for line in skipped:
         console.print(f"skipped {line}", markup=False)
+
+
+def _run_paths(runs: tuple[str, ...], runs_dir: str) -> list[Path]:
+    """Resolve RUN arguments: run files as given, else run ids (or unique prefixes) in the catalog."""
+    paths: list[Path] = []
+    for run in runs:
+        path = Path(run)
+        if path.is_file():
+            paths.append(path)
+            continue
+        with _open_catalog(runs_dir) as cat:
+            try:
+                paths.append(cat.resolve(cat.get(run)))
+            except KeyError as exc:
+                err_console.print(f"{run}: {exc}", markup=False)
+                sys.exit(2)
+    return paths
+
+
+@main.command()
+@click.argument("runs", nargs=-1, required=True)
+@RUNS_OPTION
+@click.option("--out", "out_path", type=click.Path(dir_okay=False), help="HTML file to write.")
+def report(runs: tuple[str, ...], runs_dir: str, out_path: str | None) -> None:
+    """Write one self-contained HTML report for one or more runs (files or run ids)."""
+    from sweeper.report.html import write_html
+    from sweeper.report.load import load_runs
+
+    paths = _run_paths(runs, runs_dir)
+    loaded = _read_or_exit(paths[0], lambda _p: load_runs(paths))
+    target = Path(out_path) if out_path else paths[0].with_suffix(".html")
+    write_html(loaded, target)
+    console.print(f"report: {target}")
+
+
+@main.command()
+@click.argument("run")
+@RUNS_OPTION
+@click.option("--to", "fmt", type=click.Choice(["csv", "parquet", "json"]), default="csv", show_default=True)
+@click.option("--out", "out_path", type=click.Path(dir_okay=False), help="File to write (default beside the run).")
+def export(run: str, runs_dir: str, fmt: str, out_path: str | None) -> None:
+    """Export a run's points (units in the column names) and a JSON summary."""
+    from sweeper.report.export import export_points, write_summary_json
+    from sweeper.report.load import load_run
+
+    path = _run_paths((run,), runs_dir)[0]
+    frame, meta, sha = _read_or_exit(path, load_run)
+    target = Path(out_path) if out_path else path.with_suffix(f".{fmt}")
+    try:
+        export_points(frame, meta, target, fmt)
+    except (ImportError, RuntimeError, ValueError) as exc:
+        err_console.print(f"export: {exc}", markup=False)
+        sys.exit(2)
+    summary = target.with_name(target.stem + ".summary.json")
+    write_summary_json(frame, meta, summary, file_sha256=sha)
+    console.print(f"points: {target}\nsummary: {summary}")
