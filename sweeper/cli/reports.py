@@ -1,0 +1,50 @@
+"""`report` and `export`: HTML reports and data export of filed runs."""
+
+from __future__ import annotations
+
+import sys
+from pathlib import Path
+
+import click
+
+from sweeper.cli import main
+from sweeper.cli.common import RUNS_OPTION, console, err_console, read_or_exit, run_paths
+
+
+@main.command()
+@click.argument("runs", nargs=-1, required=True)
+@RUNS_OPTION
+@click.option("--out", "out_path", type=click.Path(dir_okay=False), help="HTML file to write.")
+def report(runs: tuple[str, ...], runs_dir: str, out_path: str | None) -> None:
+    """Write one self-contained HTML report for one or more runs (files or run ids)."""
+    from sweeper.report.html import write_html
+    from sweeper.report.load import load_runs
+
+    paths = run_paths(runs, runs_dir)
+    loaded = read_or_exit(paths[0], lambda _p: load_runs(paths))
+    target = Path(out_path) if out_path else paths[0].with_suffix(".html")
+    write_html(loaded, target)
+    console.print(f"report: {target}")
+
+
+@main.command()
+@click.argument("run")
+@RUNS_OPTION
+@click.option("--to", "fmt", type=click.Choice(["csv", "parquet", "json"]), default="csv", show_default=True)
+@click.option("--out", "out_path", type=click.Path(dir_okay=False), help="File to write (default beside the run).")
+def export(run: str, runs_dir: str, fmt: str, out_path: str | None) -> None:
+    """Export a run's points (units in the column names) and a JSON summary."""
+    from sweeper.report.export import export_points, write_summary_json
+    from sweeper.report.load import load_run
+
+    path = run_paths((run,), runs_dir)[0]
+    frame, meta, sha = read_or_exit(path, load_run)
+    target = Path(out_path) if out_path else path.with_suffix(f".{fmt}")
+    try:
+        export_points(frame, meta, target, fmt)
+    except (ImportError, RuntimeError, ValueError) as exc:
+        err_console.print(f"export: {exc}", markup=False)
+        sys.exit(2)
+    summary = target.with_name(target.stem + ".summary.json")
+    write_summary_json(frame, meta, summary, file_sha256=sha)
+    console.print(f"points: {target}\nsummary: {summary}")
