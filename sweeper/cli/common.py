@@ -47,9 +47,6 @@ def flag_names(flags: int) -> str:
     return ",".join(f.name.lower() for f in Flag if f and f != Flag.NONE and flags & f) or ""
 
 
-@click.group(context_settings={"help_option_names": ["-h", "--help"]})
-@click.version_option(package_name="sweeper")
-
 def open_catalog(runs_dir: str):
     """Open the catalog beside the runs, or exit 3 with the reason."""
     from sweeper.store.catalog import Catalog, CatalogError, default_catalog_path
