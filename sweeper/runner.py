@@ -149,6 +149,7 @@ def execute_run(
     should_stop: Callable[[], bool] | None = None,
     keep_waveforms: bool = False,
     campaign: str | None = None,
+    extra_metadata: dict | None = None,
 ) -> RunOutcome:
     """Run the plan once on its bench and file the result; never raises for instrument faults."""
     out_dir = Path(out_dir)
@@ -162,6 +163,7 @@ def execute_run(
     settings = engine_settings(plan, keep_waveforms)
     model = nominal_circuit(plan)
     meta = run_metadata(plan, run_id, start, campaign)
+    meta.update(extra_metadata or {})
     points: list[Point] = []
     outcome = RunOutcome(run_id, run_path, journal_path, "error", Verdict.NOT_JUDGED)
     journal: Journal | None = None
