@@ -14,7 +14,7 @@ import numpy as np
 
 from sweeper.circuits import figures
 from sweeper.instruments.roles import ScopeLimits
-from sweeper.measure.schedule import capture_window, settle_time_s
+from sweeper.measure.schedule import capture_window, settle_time_s, time_constants_for_target
 from sweeper.prediction import nominal_circuit, predict_limits
 
 if TYPE_CHECKING:
@@ -67,7 +67,8 @@ def estimate_duration_s(
     a = plan.acquisition
     total = 0.0
     for f in frequencies_hz:
-        total += settle_time_s(f, a.settle_s, a.settle_cycles, a.settle_time_constants, slowest_time_constant_s)
+        n_tau = time_constants_for_target(a.settle_time_constants, a.target_gain_db, a.target_phase_deg)
+        total += settle_time_s(f, a.settle_s, a.settle_cycles, n_tau, slowest_time_constant_s)
         if scope_limits is not None:
             total += a.averages * capture_window(f, a.min_cycles, a.min_samples, scope_limits).duration_s
         total += TRANSACTIONS_PER_POINT * a.averages * transaction_s

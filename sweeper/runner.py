@@ -23,7 +23,7 @@ from sweeper.instruments.roles import Capture
 from sweeper.judge import Limits, run_verdict
 from sweeper.measure.engine import EngineSettings, Instruments, SweepStopped, prepare_source, sweep
 from sweeper.measure.point import Point, Verdict
-from sweeper.measure.schedule import frequency_grid
+from sweeper.measure.schedule import frequency_grid, time_constants_for_target
 from sweeper.prediction import nominal_circuit, predict_limits
 from sweeper.store.catalog import Catalog, default_catalog_path
 from sweeper.store.journal import Journal

@@ -64,6 +64,28 @@ def settle_time_s(
     return max(settle_s, settle_cycles / frequency_hz, settle_time_constants * tau)
 
 
+def time_constants_for_target(
+    settle_time_constants: float,
+    target_gain_db: float | None,
+    target_phase_deg: float | None,
+) -> float:
+    """Time constants to wait so a unit step's transient has decayed below the target uncertainty.
+
+    A first-order transient decays as exp(-t/tau); to leave at most a relative error e it needs
+    t = tau ln(1/e). The target gain uncertainty in dB is a relative amplitude error of
+    target ln(10)/20; a phase target in radians is the same relative size of a quadrature error.
+    The plan's own settle_time_constants is kept when it asks for more.
+    """
+    errors = []
+    if target_gain_db:
+        errors.append(target_gain_db * math.log(10) / 20)
+    if target_phase_deg:
+        errors.append(math.radians(target_phase_deg))
+    if not errors:
+        return settle_time_constants
+    return max(settle_time_constants, math.log(1.0 / min(errors)))
+
+
 @dataclass(frozen=True)
 class Window:
     """A capture window: sample rate (Sa/s), record length, and the cycles it holds."""

@@ -62,3 +62,15 @@ def test_samples_for_uncertainty_from_cramer_rao():
     assert m == 6566
     # Gain: 0.001 dB is a relative amplitude of 0.001 ln(10)/20 = 1.1513e-4; M = 2/(1e4 * 1.3255e-8) = 15089.
     assert samples_for_uncertainty(0.001, None, 40.0) == math.ceil(2 / (1e4 * (0.001 * math.log(10) / 20) ** 2))
+
+
+def test_settle_time_constants_follow_the_target_uncertainty():
+    from sweeper.measure.schedule import time_constants_for_target
+
+    # exp(-n) <= e  <=>  n >= ln(1/e) (first-order step response, handbook). 0.02 dB is a
+    # relative amplitude of 0.02 ln(10)/20 = 2.3026e-3 -> n = ln(434.3) = 6.074.
+    assert time_constants_for_target(5, 0.02, None) == pytest.approx(math.log(20 / (0.02 * math.log(10))))
+    assert time_constants_for_target(8, 0.02, None) == 8  # the plan asked for more
+    assert time_constants_for_target(5, None, None) == 5
+    # 0.2 degree = 3.49e-3 rad -> ln(286.5) = 5.658; the tighter of the two targets wins.
+    assert time_constants_for_target(5, 0.02, 0.2) == pytest.approx(6.074, abs=1e-3)
