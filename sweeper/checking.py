@@ -99,7 +99,7 @@ def check_plan(plan: "Plan", rows: int = 7) -> CheckReport:
                 f"{locate(plan, 'stimulus.amplitude')}: {amp:g} Vpp; expected within the source's "
                 f"{src.amplitude_min_vpp:g} to {src.amplitude_max_vpp:g} Vpp")
     scope_limits = limits_found.get("scope")
-    if scope_limits is not None and plan.bench.mode == "waveform":
+    if scope_limits is not None and plan.bench.mode in ("waveform", "scope-measure"):
         if 2.5 * report.stop_hz > scope_limits.max_sample_rate_hz:
             report.problems.append(
                 f"{locate(plan, 'sweep')}: {report.stop_hz:g} Hz; expected at most "

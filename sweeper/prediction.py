@@ -17,15 +17,15 @@ if TYPE_CHECKING:
     from sweeper.plan import Plan
 
 
-def plan_loading(plan: "Plan") -> Loading:
-    """The plan's source and probe loading as a circuits.Loading."""
+def plan_loading(plan: "Plan", reference: str | None = None) -> Loading:
+    """The plan's source and probe loading as a circuits.Loading (reference overridable)."""
     ld = plan.model.loading
     return Loading(
         source_resistance_ohm=ld.source_resistance_ohm,
         probe_resistance_ohm=ld.probe_resistance_ohm,
         probe_capacitance_f=ld.probe_capacitance_f,
         load_resistance_ohm=ld.load_resistance_ohm,
-        reference=ld.reference,
+        reference=reference or ld.reference,
     )
 
 
@@ -39,32 +39,27 @@ def tolerances(plan: "Plan") -> dict[str, float]:
     return {name: comp.tolerance_frac for name, comp in plan.model.components.items()}
 
 
-def nominal_circuit(plan: "Plan") -> Circuit:
-    """The predicted circuit with nominal parts and the plan's loading."""
+def circuit_with(plan: "Plan", values: dict[str, float], reference: str | None = None) -> Circuit:
+    """The plan's topology and loading with the given component values (SI)."""
     m = plan.model
-    return build_circuit(
-        m.circuit,
-        nominal_values(plan),
-        plan_loading(plan),
-        zeros_hz=m.zeros_hz or (),
-        poles_hz=m.poles_hz or (),
-        gain=m.gain if m.gain is not None else 1.0,
-    )
-
-
-def true_circuit(plan: "Plan") -> Circuit:
-    """The simulated board: nominal parts overridden by bench.simulation.components."""
-    m = plan.model
-    values = nominal_values(plan)
-    values.update(plan.bench.simulation.components)
     return build_circuit(
         m.circuit,
         values,
-        plan_loading(plan),
+        plan_loading(plan, reference),
         zeros_hz=m.zeros_hz or (),
         poles_hz=m.poles_hz or (),
         gain=m.gain if m.gain is not None else 1.0,
     )
+
+
+def nominal_circuit(plan: "Plan") -> Circuit:
+    """The predicted circuit with nominal parts and the plan's loading."""
+    return circuit_with(plan, nominal_values(plan))
+
+
+def true_circuit(plan: "Plan", reference: str | None = None) -> Circuit:
+    """The simulated board: nominal parts overridden by bench.simulation.components."""
+    return circuit_with(plan, {**nominal_values(plan), **plan.bench.simulation.components}, reference)
 
 
 def gain_phase_of(h: np.ndarray) -> tuple[np.ndarray, np.ndarray]:

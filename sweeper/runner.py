@@ -18,16 +18,17 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 
-from sweeper.instruments.bench import open_bench
-from sweeper.instruments.roles import Capture
+from sweeper.instruments.bench import open_bench, safe_output_off
 from sweeper.judge import Limits, run_verdict
-from sweeper.measure.engine import EngineSettings, Instruments, SweepStopped, prepare_source, sweep
-from sweeper.measure.point import Point, Verdict
+from sweeper.measure.engine import EngineSettings, EngineState, SweepStopped, prepare_source
+from sweeper.measure.point import Flag, Point, Verdict
 from sweeper.measure.schedule import frequency_grid, time_constants_for_target
 from sweeper.prediction import nominal_circuit, predict_limits
 from sweeper.store.catalog import Catalog, default_catalog_path
 from sweeper.store.journal import Journal
 from sweeper.store.runfile import FINISH_EVENT, RunWriter, file_sha256, run_header
+from sweeper.supervise import RunAborted, Supervisor, WriteFailed, estimate_run_bytes, space_problem
+from sweeper.transcript import Transcript, transcript_path
 
 if TYPE_CHECKING:
     from sweeper.plan import Plan
@@ -53,6 +54,10 @@ class RunOutcome:
     error: str | None = None
     transactions: int = 0
     catalog_error: str | None = None
+    transcript_path: Path | None = None
+    faults: dict = field(default_factory=dict)  # fault kind -> faults met (sweeper.supervise)
+    output_off: bool | None = None  # the source took 'output off' as the bench closed
+    sim_output_on: bool | None = None  # a simulated bench's generator output after the run
 
     @property
     def exit_code(self) -> int:
@@ -95,6 +100,7 @@ def engine_settings(plan: "Plan", keep_waveforms: bool = False) -> EngineSetting
         decision_rule=plan.limits.decision_rule,
         coverage_factor=plan.limits.coverage_factor,
         keep_waveforms=keep_waveforms,
+        mode=plan.bench.mode,
     )
 
 
@@ -152,77 +158,189 @@ def execute_run(
     campaign: str | None = None,
     extra_metadata: dict | None = None,
 ) -> RunOutcome:
-    """Run the plan once on its bench and file the result; never raises for instrument faults."""
+    """Run the plan once on its bench and file the result; never raises for instrument faults.
+
+    The output folder and its free space are checked before any instrument is touched.
+    Instrument faults are handled as the plan's `faults` section says (sweeper.supervise);
+    every transaction goes to the run's transcript, beside the run file.
+    """
     out_dir = Path(out_dir)
-    check_output_dir(out_dir)
     start = datetime.now(timezone.utc)
     run_id = new_run_id(plan.dut.serial, start)
     run_path = out_dir / f"{run_id}.h5"
     journal_path = out_dir / f"{run_id}.journal"
     freqs = plan_frequencies(plan)
+    outcome = RunOutcome(run_id, run_path, journal_path, "error", Verdict.NOT_JUDGED)
+    refusal = output_problem(out_dir, estimate_run_bytes(len(freqs), plan.acquisition.min_samples, keep_waveforms))
+    if refusal is None:
+        injector, refusal = fault_injector(plan)
+    if refusal is not None:
+        outcome.error = refusal
+        return outcome
     limits: Limits = predict_limits(plan, freqs)
     settings = engine_settings(plan, keep_waveforms)
     model = nominal_circuit(plan)
     meta = run_metadata(plan, run_id, start, campaign)
     meta.update(extra_metadata or {})
+    transcript = Transcript(transcript_path(out_dir, run_id))
+    outcome.transcript_path = transcript.path
+    meta["transcript"] = transcript.path.name
+    meta["keep_waveforms"] = bool(keep_waveforms)  # `sweeper resume` goes on the same way
     points: list[Point] = []
-    outcome = RunOutcome(run_id, run_path, journal_path, "error", Verdict.NOT_JUDGED)
     journal: Journal | None = None
     writer: RunWriter | None = None
+    supervisor: Supervisor | None = None
+    opened = None
+    write_failed = False
     try:
-        with open_bench(plan) as bench:
-            meta["instruments"] = [asdict(i) for i in bench.identities]
-            prediction = {k: np.asarray(v, dtype=float) for k, v in limits.as_arrays().items() if k != "frequency_hz"}
-            header = run_header(meta, freqs, prediction)
-            journal = Journal.create(journal_path, header)
-            writer = RunWriter.from_header(run_path, header)
-            if on_start:
-                on_start(run_id, freqs)
-
-            def sink(point: Point, capture: Capture | None) -> None:
-                journal.append_point(point)
-                writer.append(point)
-                if capture is not None:
-                    writer.add_waveforms(point.index, capture.volts, capture.sample_interval_s)
-                points.append(point)
-                if on_point:
-                    on_point(point)
-
-            instruments = Instruments(bench.source, bench.clock, bench.scope, bench.meter)
-            prepare_source(bench.source, settings)
+        with open_bench(plan, transcript=transcript, sim_faults=injector) as bench:
+            opened = bench
             try:
-                sweep(freqs, settings, instruments, limits, lambda f: complex(model.response(np.array([f]))[0]),
-                      sink, should_stop=should_stop, start_utc=start)
+                meta["instruments"] = [asdict(i) for i in bench.identities]
+                prediction = {k: np.asarray(v, dtype=float) for k, v in limits.as_arrays().items() if k != "frequency_hz"}
+                header = run_header(meta, freqs, prediction)
+                journal = Journal.create(journal_path, header)
+                writer = RunWriter.from_header(run_path, header)
+                if on_start:
+                    on_start(run_id, freqs)
+                supervisor = Supervisor(plan, bench, journal, writer, freqs, limits, settings, model_response(model),
+                                        points=points, start_utc=start, on_point=on_point, should_stop=should_stop,
+                                        injector=injector, transcript=transcript)
+                prepare_source(bench.source, settings)
+                supervisor.run(0, EngineState())
+            except BaseException:
+                safe_output_off(bench.source)  # best effort: the sweep's error is the one to report
+                raise
             finally:
-                bench.source.set_output(False)
+                outcome.transactions = bench.stats.writes + bench.stats.queries
+            bench.source.set_output(False)
             outcome.status = "complete"
-            outcome.transactions = bench.stats.writes + bench.stats.queries
     except (KeyboardInterrupt, SweepStopped) as exc:
         outcome.status = "interrupted"
         outcome.error = "interrupted by the operator" if isinstance(exc, KeyboardInterrupt) else str(exc)
+    except (RunAborted, WriteFailed) as exc:  # the fault policy stopped the run; data kept
+        outcome.status = "error"
+        outcome.error = str(exc)
+        write_failed = isinstance(exc, WriteFailed) and not exc.clean
     except Exception as exc:  # instrument, transport or storage faults end the run, data kept
         outcome.status = "error"
         outcome.error = f"{type(exc).__name__}: {exc}"
     finally:
+        transcript.close()
+        note_bench_end(outcome, opened)
         outcome.points = points
-        outcome.verdict = run_verdict([p.verdict for p in points]) if points else Verdict.NOT_JUDGED
-        if outcome.status != "complete" and outcome.verdict == Verdict.PASS:
-            outcome.verdict = Verdict.NOT_JUDGED  # an incomplete run never passes
-        summary = {
-            "status": outcome.status,
-            "verdict": Verdict(outcome.verdict).name,
-            "points_measured": len(points),
-            "points_planned": int(len(freqs)),
-            "error": outcome.error or "",
-        }
-        if journal is not None:
-            event = journal.append_event(FINISH_EVENT, summary=summary)
-            journal.close()
-            if writer is not None:
-                writer.finish(event["summary"], end_utc=event["time_utc"])
-                writer.close()
-                outcome.catalog_error = file_in_catalog(run_path, out_dir)
+        finish_run(outcome, journal, writer, len(freqs), supervisor.summary() if supervisor else {},
+                   {"transcript": transcript.path.name, "transcript_error": transcript.error or ""}, write_failed)
     return outcome
+
+
+def model_response(model) -> Callable[[float], complex]:
+    """The nominal circuit's complex response at one frequency (Hz), for the engine's ranges."""
+    return lambda f: complex(model.response(np.array([f]))[0])
+
+
+def output_problem(out_dir: Path, needed_bytes: int) -> str | None:
+    """Why the output folder cannot take a run of about needed_bytes (not writable, not enough
+    free space), or None; checked before any instrument is touched."""
+    try:
+        check_output_dir(out_dir)
+    except OSError as exc:
+        return f"{out_dir}: the output folder cannot be written ({exc.strerror or exc}); nothing was run"
+    problem = space_problem(out_dir, needed_bytes)
+    return f"{out_dir}: {problem}; nothing was run" if problem else None
+
+
+def fault_injector(plan: "Plan") -> tuple[object | None, str | None]:
+    """The simulated bench's injector of bench.simulation.faults (None when none are listed),
+    or a refusal when faults are listed for a bench that is not simulated."""
+    from sweeper.instruments.bench import SIM_DEFAULTS
+    from sweeper.sim.injection import injector_from_plan
+
+    bench = plan.bench
+    if not bench.simulation.faults:
+        return None, None
+    if bench.kind != "simulated" and (bench.visa_library or "").strip() != "@sim":
+        return None, "bench.simulation.faults: faults are injected on a simulated bench only; nothing was run"
+
+    def resource_of(role: str) -> str:
+        ref = getattr(bench, role, None)
+        return ref.resource if ref is not None else SIM_DEFAULTS[role][0]
+
+    return injector_from_plan(plan, resource_of), None
+
+
+def note_bench_end(outcome: RunOutcome, bench: object | None) -> None:
+    """Record how the bench closed: whether the source took 'output off' and, on a simulated
+    bench, the simulated generator's own output state."""
+    if bench is None:
+        return
+    outcome.output_off = getattr(bench, "output_off", None)
+    sim = getattr(bench, "sim", None)
+    outcome.sim_output_on = bool(sim.generator.output_on) if sim is not None else None
+
+
+def finish_run(
+    outcome: RunOutcome,
+    journal: Journal | None,
+    writer: RunWriter | None,
+    points_planned: int,
+    fault_summary: dict,
+    extra_summary: dict | None = None,
+    write_failed: bool = False,
+) -> None:
+    """Judge outcome.points, write the finish record (journal, then run file) and file the run.
+
+    Never raises: a record that cannot be written (full disk) is reported in outcome.error and
+    the run stays unfinished in the journal, to be finished by `sweeper resume`. After a failed
+    write (write_failed) the run file is only closed: it is rebuilt from the journal later
+    (`ensure_runfile`, by resume or any reader), never written to a failing disk again. A run
+    with skipped points, like an incomplete one, never passes.
+    """
+    points = outcome.points
+    skipped = sum(1 for p in points if p.flags & Flag.SKIPPED)
+    outcome.verdict = run_verdict([p.verdict for p in points]) if points else Verdict.NOT_JUDGED
+    if (outcome.status != "complete" or skipped) and outcome.verdict == Verdict.PASS:
+        outcome.verdict = Verdict.NOT_JUDGED  # an incomplete run never passes
+    outcome.faults = dict(fault_summary.get("faults", {}))
+    summary = {
+        "status": outcome.status,
+        "verdict": Verdict(outcome.verdict).name,
+        "points_measured": len(points) - skipped,
+        "points_planned": int(points_planned),
+        "error": outcome.error or "",
+        "points_skipped": skipped,
+        **fault_summary,
+        **(extra_summary or {}),
+    }
+    if journal is None:
+        return
+    problems = []
+    event = None
+    try:
+        event = journal.append_event(FINISH_EVENT, summary=summary)
+    except Exception as exc:  # noqa: BLE001 - a full disk must not turn into a traceback
+        problems.append(f"the finish record could not be written to the journal ({exc}); "
+                        "`sweeper resume` can finish the run later")
+    journal.close()
+    if writer is not None:
+        try:
+            if event is not None and not write_failed:
+                writer.finish(event["summary"], end_utc=event["time_utc"])
+        except Exception as exc:  # noqa: BLE001
+            problems.append(f"the run file could not be finished ({exc})")
+        try:
+            writer.close()
+        except Exception as exc:  # noqa: BLE001 - HDF5 flushes on close, which fails on a full disk
+            problems.append(f"the run file could not be closed cleanly ({exc})")
+        if write_failed:
+            problems.append("the run file is rebuilt from the journal once there is room "
+                            "(`sweeper resume` does it, as does reading the run)")
+        elif event is not None:
+            outcome.catalog_error = file_in_catalog(writer.path, writer.path.parent)
+    if problems:
+        outcome.error = "; ".join(filter(None, [outcome.error, *problems]))
+        if outcome.status == "complete":
+            outcome.status = "error"
 
 
 def file_in_catalog(run_path: Path, out_dir: Path) -> str | None:

@@ -15,3 +15,9 @@ def main() -> None:
 from sweeper.cli import sweeps  # noqa: E402,F401
 from sweeper.cli import archive  # noqa: E402,F401
 from sweeper.cli import reports  # noqa: E402,F401
+from sweeper.cli import campaign  # noqa: E402,F401
+from sweeper.cli import line  # noqa: E402,F401
+from sweeper.cli import bench, driver, instruments  # noqa: E402,F401
+from sweeper.cli import analysis  # noqa: E402,F401
+from sweeper.cli import resume  # noqa: E402,F401
+from sweeper.cli import watch  # noqa: E402,F401

@@ -9,5 +9,8 @@ Layers, bottom up (each module one idea):
 - interpreter DriverSession: runs a driver file's operations over a Link
 - driver_roles DriverSource, DriverScope, DriverMeter: the role protocols of roles.py
 - bench      open_bench(plan): sessions, drivers, identities, safe close
+- transport  below VISA: TCP_NODELAY on pyvisa-py raw sockets
+- discovery  list a backend's resources, *IDN? each, suggest driver files
+- driver_check, driver_try  `sweeper driver check` / `driver try`: validate, self-test
 - roles      the role protocols and data records the engine uses (the contract)
 """

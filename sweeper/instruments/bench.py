@@ -22,6 +22,7 @@ from sweeper.instruments.interpreter import DriverSession
 from sweeper.instruments.limits import SIM_DEFAULTS, bench_drivers, roles_for
 from sweeper.instruments.link import FaultHook, Link, Observer
 from sweeper.instruments.roles import Clock, Identity, TransactionStats
+from sweeper.instruments.transport import prepare_session
 
 @dataclass
 class Bench:
@@ -44,7 +45,7 @@ class Bench:
         if self.closed:
             return
         self.closed = True
-        self.output_off = safe_output_off(self.source)
+        self.output_off = safe_output_off(self.source) or reopen_output_off(self.source, self.resource_manager)
         for link in self.links:
             link.close()
         if self.resource_manager is not None:
@@ -74,6 +75,33 @@ def safe_output_off(source: DriverSource | None) -> bool:
             return True
         except Exception:  # noqa: BLE001
             return False
+
+
+def reopen_output_off(source: DriverSource | None, rm: Any) -> bool:
+    """When the source's session broke (e.g. a dropped connection), open a fresh session to the
+    same resource and send the driver's output_off once. True when the instrument took it."""
+    if source is None or rm is None:
+        return source is None
+    link, loaded = source.link, source.driver
+    conn = loaded.driver.connection
+    try:
+        resource = rm.open_resource(
+            link.resource_name,
+            read_termination=conn.read_termination,
+            write_termination=conn.write_termination,
+            timeout=max(1, int(round(link.timeout_s * 1000))),
+        )
+    except Exception:  # noqa: BLE001 - a safety action must not raise over the original problem
+        return False
+    prepare_session(resource)
+    fresh = Link(resource, link.role, stats=link.stats, observers=link.observers)
+    try:
+        DriverSession(loaded, fresh).run("output_off")
+        return True
+    except Exception:  # noqa: BLE001
+        return False
+    finally:
+        fresh.close()
 
 
 def open_role(
@@ -106,6 +134,7 @@ def open_role(
         )
     except Exception as exc:  # noqa: BLE001 - any failure to open is reported the same way
         raise InstrumentError(role, resource_name, "", f"could not open the session ({exc})") from exc
+    prepare_session(resource)  # raw sockets: no delayed-ACK stalls, a clear that ends (instruments.transport)
     link = Link(resource, role, stats=stats, observers=observers, fault_hook=fault_hook)
     try:
         idn = link.query("*IDN?").strip()
@@ -128,22 +157,26 @@ def sim_circuit(plan: Any) -> Any:
     """The true DUT of a simulated bench: the model's topology with its nominal values, overridden
     by bench.simulation.components, under the plan's loading, referenced to the DUT input node
     (the simulator adds its generator's own source resistance)."""
-    from sweeper.circuits import Loading, build_circuit
+    from sweeper.prediction import true_circuit
 
-    model = plan.model
-    values = {name: float(part.value) for name, part in model.components.items()}
-    values.update({name: float(v) for name, v in plan.bench.simulation.components.items()})
-    spec = model.loading
-    loading = Loading(
-        source_resistance_ohm=spec.source_resistance_ohm,
-        probe_resistance_ohm=spec.probe_resistance_ohm,
-        probe_capacitance_f=spec.probe_capacitance_f,
-        load_resistance_ohm=spec.load_resistance_ohm,
-        reference="input",
-    )
-    return build_circuit(
-        model.circuit, values, loading,
-        zeros_hz=tuple(model.zeros_hz), poles_hz=tuple(model.poles_hz), gain=model.gain,
+    return true_circuit(plan, reference="input")
+
+
+def sim_config(plan: Any, faults: object | None = None) -> Any:
+    """The sweeper.sim SimConfig of a plan's simulated DUT: sim_circuit(plan) and bench.simulation
+    (also what `sweeper bench serve` serves)."""
+    from sweeper.sim import SimConfig
+
+    simulation = plan.bench.simulation
+    return SimConfig(
+        circuit=sim_circuit(plan),
+        noise_v=simulation.noise_v,
+        noise_range_frac=simulation.noise_range_frac,
+        distortion_frac=simulation.distortion_frac,
+        seed=simulation.seed,
+        realtime=simulation.realtime,
+        faults=faults,
+        transient=simulation.transient,
     )
 
 
@@ -172,22 +205,12 @@ def open_bench(
     stats = TransactionStats()
     observers = [transcript] if transcript is not None else []
     sim = None
-    if bench_spec.kind == "simulated":
+    if bench_spec.kind == "simulated" or (bench_spec.visa_library or "").strip() == "@sim":
         if clock is not None:
             raise BenchError("a simulated bench runs on its own simulated clock: do not pass clock=")
-        from sweeper.sim import SimConfig, open_sim_resource_manager
+        from sweeper.sim import open_sim_resource_manager
 
-        simulation = bench_spec.simulation
-        config = SimConfig(
-            circuit=sim_circuit(plan),
-            noise_v=simulation.noise_v,
-            noise_range_frac=simulation.noise_range_frac,
-            distortion_frac=simulation.distortion_frac,
-            seed=simulation.seed,
-            realtime=simulation.realtime,
-            faults=sim_faults,
-        )
-        rm, sim = open_sim_resource_manager(config)
+        rm, sim = open_sim_resource_manager(sim_config(plan, sim_faults))
         bench_clock: Clock = sim.clock
     elif bench_spec.kind == "visa":
         if sim_faults is not None:
@@ -206,8 +229,9 @@ def open_bench(
             ref = getattr(bench_spec, role)
             if ref is None:
                 resource_name, timeout_s = SIM_DEFAULTS[role][0], None
-            else:
-                resource_name, timeout_s = ref.resource, ref.timeout_s
+            else:  # the plan's timeout when it gives one, else the driver file's
+                resource_name = ref.resource
+                timeout_s = ref.timeout_s if "timeout_s" in ref.model_fields_set else None
             adapter, identity, link = open_role(
                 rm, role, resource_name, drivers[role],
                 timeout_s=timeout_s, stats=stats, observers=observers, fault_hook=fault_hook,
@@ -221,4 +245,7 @@ def open_bench(
     return bench
 
 
-__all__ = ["SIM_DEFAULTS", "Bench", "open_bench", "open_role", "safe_output_off", "sim_circuit"]
+__all__ = [
+    "SIM_DEFAULTS", "Bench", "open_bench", "open_role", "reopen_output_off", "safe_output_off", "sim_circuit",
+    "sim_config",
+]

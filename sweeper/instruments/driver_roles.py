@@ -19,7 +19,7 @@ from sweeper.instruments.errors import LimitError, MalformedResponse
 from sweeper.instruments.interpreter import DriverSession, as_codes
 from sweeper.instruments.link import Link
 from sweeper.instruments.limits import meter_limits, scope_limits, source_limits, volts_per_div_settings
-from sweeper.instruments.roles import Capture, MeterReading
+from sweeper.instruments.roles import Capture, MeterReading, ScopeReading
 
 #: Seconds added to the session timeout while waiting for an acquisition or a measurement.
 WAIT_MARGIN_S = 2.0
@@ -232,10 +232,14 @@ class DriverScope(_DriverRole):
                 seconds_per_div = actual
             rate = n / (seconds_per_div * horizontal.divisions)
         # Vertical scaling does not depend on the window: keep it. The sample interval does:
-        # when the scope confirmed its rate, it is 1 / rate; otherwise read scaling again.
+        # when the scope confirmed its rate, it is 1 / rate (divisions x s/div / samples for a
+        # timebase, computed as a scope computes it, so that it is the same float as a fresh
+        # read of the scaling gives); otherwise read scaling again.
         if self._rate_confirmed:
+            interval_s = (horizontal.divisions * seconds_per_div / n if horizontal.mode != "sample_rate"
+                          else 1.0 / rate)
             for scaling in kept.values():
-                scaling["x_increment"] = 1.0 / rate
+                scaling["x_increment"] = interval_s
             self._scaling = kept
         self.window = (rate, n)
         self._asked = asked
@@ -262,6 +266,7 @@ class DriverScope(_DriverRole):
             got = self.session.run("fetch", {"channel": channel})
             self._last_fetched = channel
             codes = as_codes(got["codes"])
+            self._check_codes(channel, codes)
             rows[channel] = (codes - scaling["y_reference"]) * scaling["y_increment"] + scaling["y_origin"]
             clipped[channel] = self._clipped(codes)
             if channel == 1:
@@ -283,6 +288,32 @@ class DriverScope(_DriverRole):
             clipped=(clipped[1], clipped[2]),
         )
 
+    def can_measure(self) -> bool:
+        """True when the driver gives the scope's own measurements (measure_amplitude, measure_phase)."""
+        return self.session.has("measure_amplitude") and self.session.has("measure_phase")
+
+    def measure(self) -> ScopeReading:
+        """One triggered acquisition, then the scope's own peak-to-peak (both channels) and phase."""
+        if not self.can_measure():
+            raise MalformedResponse(self.link.role, self.link.resource_name, "",
+                                    f"driver {self.driver.name} has no measure_amplitude / measure_phase operations")
+        wait_s = self.link.timeout_s + WAIT_MARGIN_S
+        if self.window is not None:
+            wait_s += 2.0 * self.window[1] / self.window[0]
+        self.session.run("arm", timeout_s=wait_s)
+        amplitudes = [self.session.run("measure_amplitude", {"channel": ch}).get("amplitude_vpp") for ch in (1, 2)]
+        phase = self.session.run("measure_phase").get("phase_deg")
+        for name, value in (("amplitude_vpp (channel 1)", amplitudes[0]), ("amplitude_vpp (channel 2)", amplitudes[1]),
+                            ("phase_deg", phase)):
+            if not isinstance(value, (int, float)):
+                raise MalformedResponse(self.link.role, self.link.resource_name, "", f"{name} is {value!r}, not a number")
+        return ScopeReading(
+            amplitude_in_vpp=float(amplitudes[0]),
+            amplitude_out_vpp=float(amplitudes[1]),
+            phase_deg=float(phase),
+            full_scale_v=(self.full_scale_v.get(1, math.nan), self.full_scale_v.get(2, math.nan)),
+        )
+
     def _read_scaling(self, channel: int) -> dict[str, Any]:
         got = self.session.run("scaling", {"channel": channel})
         scaling: dict[str, Any] = {}
@@ -297,6 +328,22 @@ class DriverScope(_DriverRole):
             scaling[name] = value
         self._scaling[channel] = scaling
         return scaling
+
+    def _check_codes(self, channel: int, codes: np.ndarray) -> None:
+        """MalformedResponse when a waveform holds values its ADC cannot produce (outside its
+        range, or off its grid when codes are packed, e.g. 8 bits in 16-bit words): the block
+        was corrupted on its way, though its framing was intact."""
+        adc = self.section.adc
+        per = adc.counts_per_code
+        low, high = (-(2 ** (adc.bits - 1)), 2 ** (adc.bits - 1) - 1) if adc.signed else (0, 2**adc.bits - 1)
+        bad = (codes < low * per) | (codes > high * per) | ~np.isfinite(codes)
+        if per > 1:
+            bad |= np.mod(codes, per) != 0
+        if bad.any():
+            raise MalformedResponse(
+                self.link.role, self.link.resource_name, "",
+                f"channel {channel} waveform holds {int(bad.sum())} values its {adc.bits}-bit ADC cannot produce "
+                "(outside its range or off its code grid): the block was corrupted in transfer")
 
     def _clipped(self, codes: np.ndarray) -> bool:
         """True when any code sits at an ADC extreme (the ADC saturated)."""

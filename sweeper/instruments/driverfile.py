@@ -192,6 +192,7 @@ class SourceOperations(_Model):
     set_frequency: Operation
     output_on: Operation
     output_off: Operation
+    get_frequency: Operation = []  # optional: read the frequency back (driver try)
 
 
 class SourceSection(_Model):
@@ -262,6 +263,8 @@ class ScopeOperations(_Model):
     arm: Operation
     fetch: Operation
     scaling: Operation
+    measure_amplitude: Operation = []  # optional: the scope's own peak-to-peak (scope-measure mode)
+    measure_phase: Operation = []  # optional: the scope's own phase, channel 2 relative to 1
 
 
 class ScopeSection(_Model):
@@ -345,6 +348,7 @@ OPERATION_PARAMS: dict[str, dict[str, tuple[str, ...]]] = {
         "set_frequency": ("frequency_hz",),
         "output_on": (),
         "output_off": (),
+        "get_frequency": (),
     },
     "scope": {
         "reset": (),
@@ -355,6 +359,8 @@ OPERATION_PARAMS: dict[str, dict[str, tuple[str, ...]]] = {
         "arm": (),
         "fetch": ("channel",),
         "scaling": ("channel",),
+        "measure_amplitude": ("channel",),
+        "measure_phase": (),
     },
     "meter": {
         "reset": (),
@@ -365,7 +371,13 @@ OPERATION_PARAMS: dict[str, dict[str, tuple[str, ...]]] = {
 
 #: Names an operation must store for the interpreter to use it (alternatives separated by '|').
 REQUIRED_STORES: dict[str, dict[str, tuple[str, ...]]] = {
-    "scope": {"fetch": ("codes",), "scaling": ("y_increment", "y_origin", "y_reference")},
+    "source": {"get_frequency": ("frequency_hz",)},
+    "scope": {
+        "fetch": ("codes",),
+        "scaling": ("y_increment", "y_origin", "y_reference"),
+        "measure_amplitude": ("amplitude_vpp",),
+        "measure_phase": ("phase_deg",),
+    },
     "meter": {"measure": ("gain_db", "phase_deg")},
 }
 
@@ -496,8 +508,9 @@ def _semantic_problems(driver: DriverFile) -> list[tuple[tuple[str | int, ...], 
             if step.store:
                 stored.add(step.store)
             stored.update(step.parse.fields)
+        optional = not type(ops).model_fields[op_name].is_required()
         for need in REQUIRED_STORES.get(driver.role, {}).get(op_name, ()):
-            if need not in stored:
+            if need not in stored and (steps or not optional):
                 problems.append(((driver.role, "operations", op_name), f"a step that stores '{need}'"))
         if driver.role == "scope" and op_name == "fetch":
             code_steps = [s for s in steps if s.store == "codes"]
@@ -543,6 +556,16 @@ def parse_driver(text: str, file: str = "<driver>") -> DriverFile:
     if semantic:
         raise DriverFileError([_locate(file, root, loc, expected) for loc, expected in semantic])
     return driver
+
+
+def locate_in_text(text: str, file: str, loc: Sequence[str | int], expected: str) -> Problem:
+    """A Problem at the place `loc` (YAML keys / list indices) names in driver-file text, for
+    checks made after parse_driver (e.g. `sweeper driver check` warnings)."""
+    try:
+        root = yaml.compose(text, Loader=yaml.SafeLoader)
+    except yaml.YAMLError:
+        root = None
+    return _locate(file, root, loc, expected)
 
 
 @dataclass(frozen=True)

@@ -82,8 +82,8 @@ def driver_limits(loaded: LoadedDriver) -> Limits:
 
 
 def roles_for(mode: str) -> tuple[str, str]:
-    """The roles a bench mode uses: ('source', 'scope') or ('source', 'meter')."""
-    return ("source", "scope") if mode == "waveform" else ("source", "meter")
+    """The roles a bench mode uses: ('source', 'meter') in meter mode, else ('source', 'scope')."""
+    return ("source", "meter") if mode == "meter" else ("source", "scope")
 
 
 def bench_drivers(plan: Any) -> tuple[dict[str, LoadedDriver], list[tuple[str, str]]]:
@@ -117,6 +117,12 @@ def bench_drivers(plan: Any) -> tuple[dict[str, LoadedDriver], list[tuple[str, s
         if loaded.driver.role != role:
             problems.append((where, f"{name!r} is a {loaded.driver.role} driver; expected a {role} driver"))
             continue
+        if role == "scope" and bench.mode == "scope-measure":
+            ops = loaded.driver.section.operations
+            if not (getattr(ops, "measure_amplitude", None) and getattr(ops, "measure_phase", None)):
+                problems.append((where, f"{name!r} has no measure_amplitude and measure_phase operations; "
+                                        "expected a scope driver that measures for scope-measure mode"))
+                continue
         found[role] = loaded
     return found, problems
 

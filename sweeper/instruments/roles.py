@@ -62,6 +62,16 @@ class MeterReading:
     amplitude_out_v: float = float("nan")
 
 
+@dataclass(frozen=True)
+class ScopeReading:
+    """A scope's own measurements on one acquisition (scope-measure mode)."""
+
+    amplitude_in_vpp: float  # peak-to-peak at channel 1 as the scope measures it, V
+    amplitude_out_vpp: float  # peak-to-peak at channel 2, V
+    phase_deg: float  # channel 2 relative to channel 1, degrees
+    full_scale_v: tuple[float, float]  # vertical full-scale span of each channel, V
+
+
 class Source(Protocol):
     """A sine source driving the DUT input."""
 
@@ -87,6 +97,13 @@ class Scope(Protocol):
         """Ask for a sample rate (Hz) and record length; returns what the scope will use."""
     def capture(self) -> Capture:
         """One triggered single acquisition of both channels, fetched and scaled to volts."""
+
+
+class MeasuringScope(Scope, Protocol):
+    """A scope that also measures peak-to-peak and phase itself (scope-measure mode)."""
+
+    def measure(self) -> ScopeReading:
+        """One triggered acquisition, then the scope's own Vpp of both channels and their phase."""
 
 
 class Meter(Protocol):

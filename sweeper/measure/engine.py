@@ -57,6 +57,7 @@ class EngineSettings:
     decision_rule: str = "guarded"
     coverage_factor: float = 2.0
     keep_waveforms: bool = False
+    mode: str = "waveform"  # waveform | meter | scope-measure (the plan's bench.mode)
 
 
 @dataclass
@@ -143,6 +144,10 @@ def sweep(
         if window is None:
             assert instruments.meter is not None
             values, capture = measure_with_meter(f, settings, instruments.meter), None
+        elif settings.mode == "scope-measure":
+            from sweeper.measure.scope_measure import measure_with_scope_readings
+
+            values, capture = measure_with_scope_readings(f, settings, instruments.scope, state, model_response), None
         else:
             assert instruments.scope is not None
             values, capture = measure_with_scope(f, settings, instruments.scope, state, model_response)

@@ -28,6 +28,7 @@ from pydantic import (
 from pydantic_core import PydanticCustomError
 
 from sweeper.circuits.catalog import COMPONENTS, ComponentSpec
+from sweeper.plan.faults import FaultPolicies, Injection
 from sweeper.plan.units import (
     AmplitudeVpp,
     AngleDeg,
@@ -246,13 +247,15 @@ class Simulation(_Section):
     )
     components: dict[str, ComponentValue] = Field(default_factory=dict)  # true part values, SI
     realtime: bool = False
+    transient: bool = True  # the DUT's transient after each generator change (see sweeper.sim.bench)
+    faults: list[Injection] = Field(default_factory=list)  # faults to inject (sweeper.plan.faults)
 
 
 class Bench(_Section):
     """Which instruments play which role, and how they are reached."""
 
     kind: Literal["simulated", "visa"] = "simulated"
-    mode: Literal["waveform", "meter"] = "waveform"
+    mode: Literal["waveform", "meter", "scope-measure"] = "waveform"  # scope-measure: the scope's own Vpp and phase
     visa_library: str | None = None
     source: InstrumentRef | None = None
     scope: InstrumentRef | None = None
@@ -262,7 +265,7 @@ class Bench(_Section):
     @model_validator(mode="after")
     def _roles_present(self) -> Bench:
         findings = []
-        needed = ("source", "scope") if self.mode == "waveform" else ("source", "meter")
+        needed = ("source", "meter") if self.mode == "meter" else ("source", "scope")
         for role in needed:
             if getattr(self, role) is None:
                 findings.append(
@@ -683,6 +686,7 @@ class Plan(_Section):
     model: Model
     limits: Limits = Field(default_factory=Limits)
     metadata: Metadata = Field(default_factory=Metadata)
+    faults: FaultPolicies = Field(default_factory=FaultPolicies)  # fault handling (sweeper.plan.faults)
 
     _source_text: str = PrivateAttr("")
     _sha256: str = PrivateAttr("")

@@ -221,6 +221,14 @@ def _figures_table(frame: pd.DataFrame, metadata: Mapping[str, Any]) -> str:
     )
 
 
+def _extraction_html(frame: pd.DataFrame, metadata: Mapping[str, Any]) -> str:
+    """Fitted part values and figures with intervals; sweeper.analysis builds on this package, so it is
+    imported when called."""
+    from sweeper.analysis.page import extraction_section_html
+
+    return extraction_section_html(frame, metadata)
+
+
 def _meta_table(frame: pd.DataFrame, metadata: Mapping[str, Any], file_sha256: str) -> str:
     dut = metadata.get("dut") or {}
     planned = int(np.size((metadata.get("prediction") or {}).get("frequency_hz", [])))
@@ -359,6 +367,7 @@ def _run_section(index: int, frame: pd.DataFrame, metadata: Mapping[str, Any], f
         + _figure_html(fig, f"r{index + 1}-", f"Bode plot of run {text(metadata.get('run_id'))}", image_format,
                        caption)
         + "<h2>Derived figures</h2>" + _figures_table(frame, metadata)
+        + "<h2>Parameter extraction</h2>" + _extraction_html(frame, metadata)
         + "<h2>Run record</h2>" + _meta_table(frame, metadata, file_sha256)
         + "<h3>Instruments</h3>" + _instruments_table(metadata)
         + "<h3>Software</h3>" + _software_table(metadata)

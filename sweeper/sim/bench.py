@@ -120,6 +120,7 @@ class SimBench:
         self._time_constant_s = _slowest_time_constant_s(config.circuit)
         self._spectrum_key: tuple | None = None
         self._spectrum: physics.NodeSpectrum | None = None
+        self._draws: tuple[float, int] = (math.nan, -1)  # (generator frequency, acquisitions at it - 1)
 
     @property
     def circuit(self) -> physics.DutModel:
@@ -130,6 +131,21 @@ class SimBench:
         """An independent, reproducible random stream for one consumer (seeded by config.seed and name)."""
         key = zlib.crc32(name.encode("utf-8"))
         return np.random.default_rng(np.random.SeedSequence(entropy=self.config.seed, spawn_key=(key,)))
+
+    def acquisition_rng(self, name: str) -> np.random.Generator:
+        """The random stream of one acquisition by consumer `name` (trigger phase, noise).
+
+        It depends only on config.seed, the name, the generator's frequency (its bits) and how
+        many acquisitions were made since that frequency was set, never on what the bench did
+        before: a bench reopened mid-sweep (a resumed run) draws exactly what an uninterrupted
+        one draws at the same point.
+        """
+        frequency_hz = float(self.generator.frequency_hz)
+        count = self._draws[1] + 1 if self._draws[0] == frequency_hz else 0
+        self._draws = (frequency_hz, count)
+        bits = int(np.float64(frequency_hz).view(np.uint64))
+        key = [self.config.seed, zlib.crc32(name.encode("utf-8")), bits & 0xFFFFFFFF, bits >> 32, count]
+        return np.random.default_rng(np.random.SeedSequence(key))
 
     # --- the one place every message passes
 
@@ -194,17 +210,20 @@ class SimBench:
     ) -> Record:
         """Acquire both DUT nodes on one trigger; advances the clock by trigger wait + record duration.
 
-        The trigger fires at a uniformly random point within one period of the generator (the
-        random trigger phase); each channel gets independent white noise of config.noise_v rms
+        The trigger fires within one period of the generator, at a phase of its fundamental
+        drawn uniformly from rng (the random trigger phase); each channel gets independent white noise of config.noise_v rms
         plus config.noise_range_frac of its full-scale span (a scope front end's noise grows with
         its volts/division setting); an AC-coupled channel loses the steady-state DC level.
         """
         g = self.generator
-        period_s = 1.0 / g.frequency_hz
-        self.clock.sleep(float(rng.uniform(0.0, period_s)))
+        trigger_phase_rad = float(rng.uniform(0.0, 2 * math.pi))
+        to_go_rad = (trigger_phase_rad - self.generator_phase_rad(self.clock.now_s())) % (2 * math.pi)
+        self.clock.sleep(to_go_rad / (2 * math.pi * g.frequency_hz))
         start_s = self.clock.now_s()
         spectrum = self.spectrum()
-        phases = physics.sample_phases_rad(self.generator_phase_rad(start_s), g.frequency_hz, sample_interval_s, samples)
+        # The record starts at the drawn phase itself (not one recomputed from the clock), so
+        # the samples depend on the draw and the settings only.
+        phases = physics.sample_phases_rad(trigger_phase_rad, g.frequency_hz, sample_interval_s, samples)
         volts = physics.node_values_v(spectrum, phases)
         if self.config.transient and self._transient.residual_v != 0.0:
             volts[1] += self._transient_at(start_s + sample_interval_s * np.arange(samples))

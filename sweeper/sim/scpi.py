@@ -119,10 +119,14 @@ def format_number(value: float) -> str:
     return repr(value)
 
 
-def steps_125(lo: float, hi: float) -> np.ndarray:
-    """All 1-2-5 sequence values in [lo, hi]."""
+#: ISO 3 preferred numbers, series R10 (ratio 10^(1/10), rounded): a finer vertical-scale grid.
+R10 = (1.0, 1.25, 1.6, 2.0, 2.5, 3.15, 4.0, 5.0, 6.3, 8.0)
+
+
+def steps_125(lo: float, hi: float, mantissas: tuple[float, ...] = (1.0, 2.0, 5.0)) -> np.ndarray:
+    """All 1-2-5 sequence values in [lo, hi] (or another mantissa series per decade)."""
     decades = range(int(np.floor(np.log10(lo))) - 1, int(np.ceil(np.log10(hi))) + 1)
-    values = [m * 10.0**d for d in decades for m in (1.0, 2.0, 5.0)]
+    values = [m * 10.0**d for d in decades for m in mantissas]
     values = [float(f"{v:.6g}") for v in values]
     return np.array([v for v in values if lo * (1 - 1e-9) <= v <= hi * (1 + 1e-9)])
 

@@ -85,6 +85,7 @@ from sweeper.store.journal import _fsync_dir, dumps, loads, read_journal, utc_no
 FORMAT_NAME = "sweeper-run"
 FORMAT_VERSION = 1
 FINISH_EVENT = "finished"
+RESUMED_EVENT = "resumed"  # journal event of `sweeper resume`: voids the finish event before it
 """Journal event kind that marks a finished run; its data carry `summary` (dict)."""
 
 SOFTWARE_PACKAGES: tuple[str, ...] = (
@@ -468,8 +469,14 @@ def frames_identical(a: pd.DataFrame, b: pd.DataFrame) -> bool:
 
 
 def _finish_event(events: list[dict[str, Any]]) -> dict[str, Any] | None:
-    done = [e for e in events if e["kind"] == FINISH_EVENT]
-    return done[-1] if done else None
+    """The finish event in force: the last one, unless a RESUMED_EVENT came after it (the run
+    was taken up again by `sweeper resume` and is unfinished until its next finish event)."""
+    for event in reversed(events):
+        if event["kind"] == RESUMED_EVENT:
+            return None
+        if event["kind"] == FINISH_EVENT:
+            return event
+    return None
 
 
 def rebuild_runfile(journal_path: str | os.PathLike[str], runfile_path: str | os.PathLike[str]) -> None:

@@ -113,7 +113,7 @@ def test_both_dialects_capture_the_same_signal() -> None:
         assert abs(h) == pytest.approx(abs(divider_h(F_HZ)), rel=2e-3)
         assert math.degrees(np.angle(h)) == pytest.approx(math.degrees(np.angle(divider_h(F_HZ))), abs=0.12)
     full_scale = {"A": captures["A"].full_scale_v, "B": captures["B"].full_scale_v}
-    assert full_scale == {"A": (4.0, 4.0), "B": (5.0, 5.0)}  # 0.5 V/div x 8 and x 10 divisions
+    assert full_scale == {"A": (2.52, 2.52), "B": (5.0, 5.0)}  # 0.315 V/div (R10) x 8; 0.5 V/div x 10
     # Same amplitude from both dialects. Per-sample error: 10 mV noise plus quantisation
     # (LSB 15.6 mV for A, 19.5 mV for B, LSB^2/12 each), giving 0.22 and 0.23 mV per fitted
     # amplitude, 0.32 mV on their difference; 1.5 mV is about 5 sigma (and under one LSB).
@@ -178,11 +178,11 @@ def test_window_limits_and_rounding() -> None:
 def test_clipping_is_detected() -> None:
     with open_bench(load_plan_text(plan_text(noise="0.5 mV"), "t.yaml")) as bench:
         prepared(bench)
-        assert bench.scope.set_range(1, 0.1) == pytest.approx(0.16)  # 20 mV/div x 8
+        assert bench.scope.set_range(1, 0.1) == pytest.approx(0.1)  # 12.5 mV/div (R10) x 8
         capture = bench.scope.capture()
         assert capture.clipped == (True, False)
         # the clipped channel sits at the top code: (127 * 256) * yincrement
-        assert capture.volts[0].max() == pytest.approx(127 / 256 * 0.16, rel=1e-9)
+        assert capture.volts[0].max() == pytest.approx(127 / 256 * 0.1, rel=1e-9)
         bench.scope.set_range(1, 2.5)
         assert bench.scope.capture().clipped == (False, False)
 

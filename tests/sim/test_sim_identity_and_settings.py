@@ -55,8 +55,8 @@ def test_generator_settings_read_back(open_rig):
 def test_scope_settings_follow_their_steps(open_rig):
     rig = open_rig(divider(1e3, 1e3))
     a, b = rig.scope_a, rig.scope_b
-    a.write(":CHAN2:SCAL 0.3")  # not a 1-2-5 step: the next larger one is used
-    assert float(a.query(":CHANnel2:SCALe?")) == 0.5
+    a.write(":CHAN2:SCAL 0.3")  # not an R10 step (ISO 3): the next larger one is used
+    assert float(a.query(":CHANnel2:SCALe?")) == 0.315
     a.write(":ACQ:SRAT 3e5")  # rounded down to a 1-2-5 step
     assert float(a.query(":ACQ:SRAT?")) == 2e5
     a.write(":ACQ:POIN 12345")

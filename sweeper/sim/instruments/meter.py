@@ -32,7 +32,6 @@ class Meter(ScpiInstrument):
     def __init__(self, bench: SimBench) -> None:
         super().__init__()
         self.bench = bench
-        self.rng = bench.rng_for("GPM-1")
         self.add("SENSe:BANDwidth", setter=self._set_bandwidth, getter=lambda s, p: format_number(self.bandwidth_hz))
         self.add("INITiate", setter=self._initiate)
         self.add("FETCh:GAIN", getter=lambda s, p: format_number(self._fetch().gain_db))
@@ -56,7 +55,8 @@ class Meter(ScpiInstrument):
             self.bench.config.noise_v, 1.0 / (2.0 * duration_s), self.bench.config.meter_front_end_bandwidth_hz
         )
         v_in, v_out = self.bench.fundamental_phasors()
-        noise = self.rng.normal(0.0, sigma, 4) if sigma > 0 else [0.0] * 4
+        rng = self.bench.acquisition_rng("GPM-1")  # depends on the seed and frequency only
+        noise = rng.normal(0.0, sigma, 4) if sigma > 0 else [0.0] * 4
         v_in += complex(noise[0], noise[1])
         v_out += complex(noise[2], noise[3])
         self.bench.clock.sleep(duration_s)

@@ -6,8 +6,12 @@ import numpy as np
 
 from sweeper.sim.bench import SimBench
 from sweeper.sim.instruments._capture import ADC_CODES, Capture, digitise
+from sweeper.sim.instruments.scope_measurements import crossing_phase_deg, peak_to_peak
 from sweeper.sim.scpi import (
     DATA_STALE,
+    MISSING_PARAMETER,
+    PARAMETER_NOT_ALLOWED,
+    ScpiError,
     ScpiInstrument,
     format_number,
     parse_choice,
@@ -15,12 +19,13 @@ from sweeper.sim.scpi import (
     parse_suffixed,
     step_at_or_above,
     step_at_or_below,
+    R10,
     steps_125,
 )
 
 CHANNELS = 2
 DIVISIONS = 8
-SCALES_V_PER_DIV = steps_125(1e-3, 10.0)
+SCALES_V_PER_DIV = steps_125(1e-3, 10.0, R10)  # fine vertical steps (ISO 3 series R10)
 SAMPLE_RATES_HZ = steps_125(1e3, 1e9)
 POINTS_MIN, POINTS_MAX = 1000, 1_000_000
 OFFSET_MAX_V = 50.0
@@ -33,7 +38,6 @@ class ScopeA(ScpiInstrument):
     def __init__(self, bench: SimBench) -> None:
         super().__init__()
         self.bench = bench
-        self.rng = bench.rng_for("DSO-A2")
         self.add(":CHANnel<n>:SCALe", setter=self._set_scale, getter=lambda s, p: format_number(self.scale_v[self._ch(s)]))
         self.add(":CHANnel<n>:OFFSet", setter=self._set_offset, getter=lambda s, p: format_number(self.offset_v[self._ch(s)]))
         self.add(":CHANnel<n>:COUPling", setter=self._set_coupling, getter=lambda s, p: self.coupling[self._ch(s)])
@@ -45,6 +49,8 @@ class ScopeA(ScpiInstrument):
         self.add(":WAVeform:FORMat", setter=self._set_format, getter=lambda s, p: self.format)
         self.add(":WAVeform:PREamble", getter=self._preamble)
         self.add(":WAVeform:DATA", getter=self._data)
+        self.add(":MEASure:VAMPlitude", getter=self._measure_amplitude)
+        self.add(":MEASure:PHASe", getter=self._measure_phase)
         self.reset()
 
     def reset(self) -> None:
@@ -108,7 +114,7 @@ class ScopeA(ScpiInstrument):
         record = self.bench.acquire(
             self.points,
             1.0 / self.sample_rate_hz,
-            self.rng,
+            self.bench.acquisition_rng("DSO-A2"),
             ac_coupled=(self.coupling[0] == "AC", self.coupling[1] == "AC"),
             full_scale_v=(DIVISIONS * self.scale_v[0], DIVISIONS * self.scale_v[1]),
         )
@@ -143,3 +149,28 @@ class ScopeA(ScpiInstrument):
             payload = codes.astype(np.int8).tobytes()
         length = str(len(payload)).encode("ascii")
         return b"#" + str(len(length)).encode("ascii") + length + payload
+
+    def _measured_channels(self, params: list[str], count: int) -> list[int]:
+        if len(params) < count or any(not p for p in params):
+            raise ScpiError(MISSING_PARAMETER)
+        if len(params) > count:
+            raise ScpiError(PARAMETER_NOT_ALLOWED)
+        return [parse_suffixed(p, "CHANnel<n>", 1, CHANNELS) for p in params]
+
+    def _measure_amplitude(self, suffixes: tuple[int, ...], params: list[str]) -> str:
+        """Peak-to-peak volts (max - min) of the stored acquisition on one channel."""
+        (channel,) = self._measured_channels(params, 1)
+        capture = self._valid_capture()
+        if capture is None:
+            self.queue_error(DATA_STALE)
+            return format_number(float("nan"))
+        return format_number(peak_to_peak(capture.codes[channel - 1]) * capture.lsb_v[channel - 1])
+
+    def _measure_phase(self, suffixes: tuple[int, ...], params: list[str]) -> str:
+        """Phase (degrees) of the second channel relative to the first, from rising crossings."""
+        first, second = self._measured_channels(params, 2)
+        capture = self._valid_capture()
+        if capture is None:
+            self.queue_error(DATA_STALE)
+            return format_number(float("nan"))
+        return format_number(crossing_phase_deg(capture.codes[first - 1], capture.codes[second - 1]))

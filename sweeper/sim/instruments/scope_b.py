@@ -30,7 +30,6 @@ class ScopeB(ScpiInstrument):
     def __init__(self, bench: SimBench) -> None:
         super().__init__()
         self.bench = bench
-        self.rng = bench.rng_for("DSO-B2")
         self.add("CH<n>:VOLts", setter=self._set_volts, getter=lambda s, p: format_number(self.volts_per_div[self._ch(s)]))
         self.add("CH<n>:POSition", setter=self._set_position, getter=lambda s, p: format_number(self.position_div[self._ch(s)]))
         self.add("CH<n>:COUPling", setter=self._set_coupling, getter=lambda s, p: self.coupling[self._ch(s)])
@@ -124,7 +123,7 @@ class ScopeB(ScpiInstrument):
         record = self.bench.acquire(
             self.record_length,
             interval_s,
-            self.rng,
+            self.bench.acquisition_rng("DSO-B2"),
             ac_coupled=(self.coupling[0] == "AC", self.coupling[1] == "AC"),
             full_scale_v=(DIVISIONS * self.volts_per_div[0], DIVISIONS * self.volts_per_div[1]),
         )
