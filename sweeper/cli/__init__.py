@@ -12,12 +12,16 @@ def main() -> None:
 
 
 # Command modules register themselves on `main` when imported (keep one import per module).
-from sweeper.cli import sweeps  # noqa: E402,F401
-from sweeper.cli import archive  # noqa: E402,F401
-from sweeper.cli import reports  # noqa: E402,F401
-from sweeper.cli import campaign  # noqa: E402,F401
-from sweeper.cli import line  # noqa: E402,F401
-from sweeper.cli import bench, driver, instruments  # noqa: E402,F401
-from sweeper.cli import analysis  # noqa: E402,F401
-from sweeper.cli import resume  # noqa: E402,F401
-from sweeper.cli import watch  # noqa: E402,F401
+from sweeper.cli import (  # noqa: E402,F401
+    analysis,  # noqa: E402,F401
+    archive,  # noqa: E402,F401
+    bench,
+    campaign,  # noqa: E402,F401
+    driver,
+    instruments,
+    line,  # noqa: E402,F401
+    reports,  # noqa: E402,F401
+    resume,  # noqa: E402,F401
+    sweeps,  # noqa: E402,F401
+    watch,  # noqa: E402,F401
+)

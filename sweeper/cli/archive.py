@@ -9,7 +9,13 @@ import click
 from rich.table import Table
 
 from sweeper.cli import main
-from sweeper.cli.common import RUNS_OPTION, console, err_console, open_catalog, read_or_exit
+from sweeper.cli.common import (
+    RUNS_OPTION,
+    console,
+    err_console,
+    open_catalog,
+    read_or_exit,
+)
 from sweeper.judge import VERDICT_LABELS
 from sweeper.measure.point import Verdict
 from sweeper.plan import format_quantity

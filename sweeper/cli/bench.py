@@ -79,7 +79,13 @@ def serve(plan_path: str, host: str, base_port: int, allow_remote: bool, instrum
     from dataclasses import replace
 
     from sweeper.instruments.bench import sim_config
-    from sweeper.sim.serve import DRIVERS, INSTRUMENTS, NetFaultPlan, is_loopback, serve_bench
+    from sweeper.sim.serve import (
+        DRIVERS,
+        INSTRUMENTS,
+        NetFaultPlan,
+        is_loopback,
+        serve_bench,
+    )
 
     plan = load_plan_or_exit(plan_path)
     net_faults = NetFaultPlan()

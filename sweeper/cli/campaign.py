@@ -13,7 +13,12 @@ from rich import box
 from rich.table import Table
 
 from sweeper.cli import main
-from sweeper.cli.common import RUNS_OPTION, console, err_console, load_plan_or_exit
+from sweeper.cli.common import (
+    RUNS_OPTION,
+    checked_plan_or_exit,
+    console,
+    err_console,
+)
 from sweeper.judge import VERDICT_LABELS
 from sweeper.measure.point import Verdict
 from sweeper.plan import format_quantity, parse_quantity
@@ -117,7 +122,6 @@ def repeat(plan_path: str, out_dir: str, count: int | None, every: str | None, f
         run_campaign,
     )
     from sweeper.campaign_drift import drift_table
-    from sweeper.checking import check_plan
 
     every_s, duration_s = _time_option(every, "--every"), _time_option(for_, "--for")
     try:
@@ -125,13 +129,7 @@ def repeat(plan_path: str, out_dir: str, count: int | None, every: str | None, f
     except ValueError as exc:
         err_console.print(f"repeat: {exc} (use --count N, or --every T --for D)", markup=False)
         sys.exit(2)
-    plan = load_plan_or_exit(plan_path)
-    report = check_plan(plan)
-    if report.problems:
-        for problem in report.problems:
-            err_console.print(problem, markup=False)
-        err_console.print(f"{len(report.problems)} problem(s) in {plan_path}; nothing was run.", markup=False)
-        sys.exit(2)
+    plan, report = checked_plan_or_exit(plan_path)
     campaign_id = new_campaign_id()
     clock = clock_for(plan)
     planned = schedule.planned_sweeps()

@@ -42,6 +42,23 @@ def load_plan_or_exit(plan_path: str):
         sys.exit(2)
 
 
+def checked_plan_or_exit(plan_path: str):
+    """Load a plan and check it against its drivers; print every problem and exit 2 if any.
+
+    Returns (plan, check report) for a sound plan.
+    """
+    from sweeper.checking import check_plan
+
+    plan = load_plan_or_exit(plan_path)
+    report = check_plan(plan)
+    if report.problems:
+        for problem in report.problems:
+            err_console.print(problem, markup=False)
+        err_console.print(f"{len(report.problems)} problem(s) in {plan_path}; nothing was run.", markup=False)
+        sys.exit(2)
+    return plan, report
+
+
 def flag_names(flags: int) -> str:
     """Comma list of a point's flag names, lower case."""
     return ",".join(f.name.lower() for f in Flag if f and f != Flag.NONE and flags & f) or ""

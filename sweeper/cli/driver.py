@@ -88,7 +88,11 @@ def try_(file: str, resource: str, backend: str, timeout_s: float | None, freque
     measurement), then the error queue. Exit 0 when no step failed, 2 for a bad driver file,
     resource name or option, 3 when a step failed.
     """
-    from sweeper.instruments.discovery import BackendError, open_resource_manager, resource_name_problem
+    from sweeper.instruments.discovery import (
+        BackendError,
+        open_resource_manager,
+        resource_name_problem,
+    )
     from sweeper.instruments.driver_check import check_driver
     from sweeper.instruments.driver_try import any_failed, try_driver
     from sweeper.plan import parse_quantity

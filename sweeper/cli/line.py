@@ -18,7 +18,11 @@ from rich.table import Table
 from rich.text import Text
 
 from sweeper.cli import main
-from sweeper.cli.common import console, err_console, load_plan_or_exit
+from sweeper.cli.common import (
+    checked_plan_or_exit,
+    console,
+    err_console,
+)
 from sweeper.judge import VERDICT_LABELS, VERDICT_MEANINGS
 from sweeper.measure.point import Verdict
 from sweeper.plan import format_quantity
@@ -122,19 +126,12 @@ def line(plan_path: str, out_dir: str, summary_out: str | None, waveforms: bool)
     'y' to be retested. Exit 0 when the shift ends normally (the verdicts are in the tally),
     3 when a run ended in an instrument or run error, 130 when interrupted.
     """
-    from sweeper.checking import check_plan
     from sweeper.production import SUMMARY_SUFFIXES, run_shift, write_shift_summary
 
     if summary_out and Path(summary_out).suffix.lower() not in SUMMARY_SUFFIXES:
         err_console.print(f"--summary-out: {summary_out!r} needs the suffix .csv or .json", markup=False)
         sys.exit(2)
-    plan = load_plan_or_exit(plan_path)
-    report = check_plan(plan)
-    if report.problems:
-        for problem in report.problems:
-            err_console.print(problem, markup=False)
-        err_console.print(f"{len(report.problems)} problem(s) in {plan_path}; nothing was run.", markup=False)
-        sys.exit(2)
+    plan, report = checked_plan_or_exit(plan_path)
     console.print(f"[bold]{plan.name}[/]  {plan.dut.board}: production line, {report.points} points per board, "
                   f"about {report.duration_text} each; runs filed in {out_dir}")
     stdin = click.get_text_stream("stdin")

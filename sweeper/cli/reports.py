@@ -8,7 +8,13 @@ from pathlib import Path
 import click
 
 from sweeper.cli import main
-from sweeper.cli.common import RUNS_OPTION, console, err_console, read_or_exit, run_paths
+from sweeper.cli.common import (
+    RUNS_OPTION,
+    console,
+    err_console,
+    read_or_exit,
+    run_paths,
+)
 
 
 @main.command()

@@ -10,11 +10,25 @@ from pathlib import Path
 import click
 import numpy as np
 from rich.panel import Panel
-from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn, TimeRemainingColumn
+from rich.progress import (
+    BarColumn,
+    MofNCompleteColumn,
+    Progress,
+    TextColumn,
+    TimeElapsedColumn,
+    TimeRemainingColumn,
+)
 from rich.table import Table
 
 from sweeper.cli import main
-from sweeper.cli.common import SAFETY, VERDICT_STYLE, console, err_console, flag_names, load_plan_or_exit
+from sweeper.cli.common import (
+    SAFETY,
+    VERDICT_STYLE,
+    checked_plan_or_exit,
+    console,
+    err_console,
+    flag_names,
+)
 from sweeper.judge import VERDICT_LABELS, VERDICT_MEANINGS
 from sweeper.measure.point import Point, Verdict
 from sweeper.plan import format_quantity
@@ -24,15 +38,8 @@ from sweeper.plan import format_quantity
 @click.argument("plan_path", type=click.Path(dir_okay=False))
 def check(plan_path: str) -> None:
     """Validate a test plan and show what the board should do and how long the sweep takes."""
-    from sweeper.checking import check_plan
 
-    plan = load_plan_or_exit(plan_path)
-    report = check_plan(plan)
-    if report.problems:
-        for problem in report.problems:
-            err_console.print(problem, markup=False)
-        err_console.print(f"{len(report.problems)} problem(s) in {plan_path}; nothing was run.", markup=False)
-        sys.exit(2)
+    plan, report = checked_plan_or_exit(plan_path)
     console.print(f"[bold]{plan.name}[/]  {plan.dut.board} ({plan.dut.serial})  plan sha256 {plan.sha256[:12]}")
     console.print(
         f"{report.points} points, {format_quantity(report.start_hz, 'frequency')} to "
@@ -65,15 +72,9 @@ def check(plan_path: str) -> None:
 @click.option("--waveforms/--no-waveforms", default=False, help="Also store every capture's raw waveforms.")
 def run(plan_path: str, out_dir: str, waveforms: bool) -> None:
     """Run a test plan's sweep, judge it and file the run."""
-    from sweeper.checking import check_plan
     from sweeper.runner import execute_run
 
-    plan = load_plan_or_exit(plan_path)
-    report = check_plan(plan)
-    if report.problems:
-        for problem in report.problems:
-            err_console.print(problem, markup=False)
-        sys.exit(2)
+    plan, report = checked_plan_or_exit(plan_path)
     console.print(f"[bold]{plan.name}[/]  {plan.dut.board} ({plan.dut.serial})  {report.points} points, "
                   f"estimated {report.duration_text}")
     stop_requested = {"flag": False}
