@@ -8,6 +8,7 @@ import numpy as np
 
 from sweeper.sim import physics
 from sweeper.sim.bench import Record
+from sweeper.sim.scpi import ScpiInstrument, parse_choice
 
 ADC_CODES = 256  # 8-bit ADC: codes -128 .. +127 span the screen
 
@@ -27,3 +28,32 @@ def digitise(record: Record, full_scale_v: tuple[float, float], centre_v: tuple[
     lsb = (full_scale_v[0] / ADC_CODES, full_scale_v[1] / ADC_CODES)
     codes = np.stack([physics.quantise(record.volts[c], lsb[c], centre_v[c]) for c in (0, 1)])
     return Capture(codes=codes, sample_interval_s=record.sample_interval_s, lsb_v=lsb, centre_v=tuple(centre_v))
+
+
+class TwoChannelScope(ScpiInstrument):
+    """What both simulated scope dialects share: channel suffixes, coupling, stale-capture rule.
+
+    A subclass keeps `capture`, `_capture_state` and `coupling`, and says in
+    `_acquisition_state` which settings an acquisition depends on.
+    """
+
+    CHANNELS = 2
+    capture: Capture | None
+    _capture_state: tuple
+    coupling: list[str]
+
+    def _acquisition_state(self) -> tuple:
+        raise NotImplementedError
+
+    def _valid_capture(self) -> Capture | None:
+        """The stored acquisition, unless a setting it depends on changed since (then it is stale)."""
+        if self.capture is not None and self._acquisition_state() == self._capture_state:
+            return self.capture
+        return None
+
+    def _ch(self, suffixes: tuple[int, ...]) -> int:
+        return self.check_suffix(suffixes[0], 1, self.CHANNELS) - 1
+
+    def _set_coupling(self, suffixes: tuple[int, ...], params: list[str]) -> None:
+        ch = self._ch(suffixes)
+        self.coupling[ch] = parse_choice(self.one_param(params), {"DC": "DC", "AC": "AC"})

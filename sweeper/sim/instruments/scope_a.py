@@ -5,14 +5,13 @@ from __future__ import annotations
 import numpy as np
 
 from sweeper.sim.bench import SimBench
-from sweeper.sim.instruments._capture import ADC_CODES, Capture, digitise
+from sweeper.sim.instruments._capture import ADC_CODES, Capture, TwoChannelScope, digitise
 from sweeper.sim.instruments.scope_measurements import crossing_phase_deg, peak_to_peak
 from sweeper.sim.scpi import (
     DATA_STALE,
     MISSING_PARAMETER,
     PARAMETER_NOT_ALLOWED,
     ScpiError,
-    ScpiInstrument,
     format_number,
     parse_choice,
     parse_number,
@@ -32,7 +31,7 @@ OFFSET_MAX_V = 50.0
 WORD_COUNTS_PER_CODE = 256  # WORD format: the 8-bit code sits in the high byte
 
 
-class ScopeA(ScpiInstrument):
+class ScopeA(TwoChannelScope):
     """DSO-A2: :SINGle acquires both channels on one trigger; :WAVeform:DATA? returns a block."""
 
     def __init__(self, bench: SimBench) -> None:
@@ -70,15 +69,6 @@ class ScopeA(ScpiInstrument):
         """The settings an acquisition's scaling and timing depend on."""
         return (tuple(self.scale_v), tuple(self.offset_v), tuple(self.coupling), self.sample_rate_hz, self.points)
 
-    def _valid_capture(self) -> Capture | None:
-        """The stored acquisition, unless a setting it depends on changed since (then it is stale)."""
-        if self.capture is not None and self._acquisition_state() == self._capture_state:
-            return self.capture
-        return None
-
-    def _ch(self, suffixes: tuple[int, ...]) -> int:
-        return self.check_suffix(suffixes[0], 1, CHANNELS) - 1
-
     def _set_scale(self, suffixes: tuple[int, ...], params: list[str]) -> None:
         ch = self._ch(suffixes)
         value = self.clamp(parse_number(self.one_param(params)), SCALES_V_PER_DIV[0], SCALES_V_PER_DIV[-1])
@@ -87,10 +77,6 @@ class ScopeA(ScpiInstrument):
     def _set_offset(self, suffixes: tuple[int, ...], params: list[str]) -> None:
         ch = self._ch(suffixes)
         self.offset_v[ch] = self.clamp(parse_number(self.one_param(params)), -OFFSET_MAX_V, OFFSET_MAX_V)
-
-    def _set_coupling(self, suffixes: tuple[int, ...], params: list[str]) -> None:
-        ch = self._ch(suffixes)
-        self.coupling[ch] = parse_choice(self.one_param(params), {"DC": "DC", "AC": "AC"})
 
     def _set_rate(self, suffixes: tuple[int, ...], params: list[str]) -> None:
         value = self.clamp(parse_number(self.one_param(params)), SAMPLE_RATES_HZ[0], SAMPLE_RATES_HZ[-1])

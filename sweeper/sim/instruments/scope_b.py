@@ -3,10 +3,9 @@
 from __future__ import annotations
 
 from sweeper.sim.bench import SimBench
-from sweeper.sim.instruments._capture import ADC_CODES, Capture, digitise
+from sweeper.sim.instruments._capture import ADC_CODES, Capture, TwoChannelScope, digitise
 from sweeper.sim.scpi import (
     DATA_STALE,
-    ScpiInstrument,
     format_number,
     parse_choice,
     parse_number,
@@ -24,7 +23,7 @@ POSITION_MAX_DIV = 5.0
 CODES_PER_DIV = ADC_CODES / DIVISIONS
 
 
-class ScopeB(ScpiInstrument):
+class ScopeB(TwoChannelScope):
     """DSO-B2: ACQuire:STATE RUN acquires both channels on one trigger; CURVe? returns ASCII codes."""
 
     def __init__(self, bench: SimBench) -> None:
@@ -68,15 +67,6 @@ class ScopeB(ScpiInstrument):
             self.record_length,
         )
 
-    def _valid_capture(self) -> Capture | None:
-        """The stored acquisition, unless a setting it depends on changed since (then it is stale)."""
-        if self.capture is not None and self._acquisition_state() == self._capture_state:
-            return self.capture
-        return None
-
-    def _ch(self, suffixes: tuple[int, ...]) -> int:
-        return self.check_suffix(suffixes[0], 1, CHANNELS) - 1
-
     def _set_volts(self, suffixes: tuple[int, ...], params: list[str]) -> None:
         ch = self._ch(suffixes)
         value = self.clamp(parse_number(self.one_param(params)), SCALES_V_PER_DIV[0], SCALES_V_PER_DIV[-1])
@@ -85,10 +75,6 @@ class ScopeB(ScpiInstrument):
     def _set_position(self, suffixes: tuple[int, ...], params: list[str]) -> None:
         ch = self._ch(suffixes)
         self.position_div[ch] = self.clamp(parse_number(self.one_param(params)), -POSITION_MAX_DIV, POSITION_MAX_DIV)
-
-    def _set_coupling(self, suffixes: tuple[int, ...], params: list[str]) -> None:
-        ch = self._ch(suffixes)
-        self.coupling[ch] = parse_choice(self.one_param(params), {"DC": "DC", "AC": "AC"})
 
     def _set_horizontal(self, suffixes: tuple[int, ...], params: list[str]) -> None:
         self.seconds_per_div = self.clamp(parse_number(self.one_param(params)), HORIZONTAL_MIN_S, HORIZONTAL_MAX_S)
