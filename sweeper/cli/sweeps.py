@@ -146,7 +146,10 @@ def render_outcome(outcome) -> None:
     v = Verdict(outcome.verdict)
     console.print(Panel(f"{VERDICT_LABELS[v]}  —  {VERDICT_MEANINGS[v]}", style=VERDICT_STYLE[v],
                         title=f"verdict ({outcome.status})"))
-    console.print(f"run file: {outcome.run_path}")
-    console.print(f"journal:  {outcome.journal_path}")
+    if outcome.journal_path.exists():
+        console.print(f"run file: {outcome.run_path}")
+        console.print(f"journal:  {outcome.journal_path}")
+    else:
+        console.print("nothing was written: the run stopped before its first record")
 
 
