@@ -17,12 +17,12 @@ from sweeper.instruments.driverfile import (
     DriverFile,
     DriverFileError,
     LoadedDriver,
-    Problem,
     ScopeSection,
     load_driver,
     locate_in_text,
 )
 from sweeper.instruments.template import TemplateError, render
+from sweeper.located import Problem
 
 #: Example placeholder values used to render every template once (SI units).
 EXAMPLE_VALUES: dict[str, int | float | str] = {
@@ -94,7 +94,8 @@ def render_problems(driver: DriverFile, text: str, file: str) -> list[Problem]:
             try:
                 render(template or "", EXAMPLE_VALUES)
             except TemplateError as exc:
-                problems.append(locate_in_text(text, file, (*loc, i, kind), f"a template that renders ({exc})"))
+                problems.append(locate_in_text(text, file, (*loc, i, kind), "bad_template",
+                                               f"does not render with example values ({exc})"))
     return problems
 
 
@@ -102,18 +103,18 @@ def lint(driver: DriverFile, text: str, file: str) -> list[Problem]:
     """Legal but risky choices, located."""
     warnings = []
     if not driver.identify:
-        warnings.append(locate_in_text(text, file, ("identify",),
-                                       "at least one pattern: without one, any instrument that answers is driven"))
+        warnings.append(locate_in_text(text, file, ("identify",), "no_identity",
+                                       "has no pattern: any instrument that answers would be driven"))
     for i, pattern in enumerate(driver.identify):
         if re.search(pattern, ""):
-            warnings.append(locate_in_text(text, file, ("identify", i),
-                                           "a pattern that needs identity text: this one matches any answer"))
+            warnings.append(locate_in_text(text, file, ("identify", i), "matches_anything",
+                                           "matches any answer: a pattern must need identity text"))
     if driver.errors.query is None:
-        warnings.append(locate_in_text(text, file, ("errors", "query"),
-                                       "an error-queue query: without one, refused commands go unnoticed"))
+        warnings.append(locate_in_text(text, file, ("errors", "query"), "no_error_queue",
+                                       "is not set: without an error-queue query, refused commands go unnoticed"))
     if driver.connection.timeout_s < SHORT_TIMEOUT_S:
-        warnings.append(locate_in_text(text, file, ("connection", "timeout_s"),
-                                       f"at least {SHORT_TIMEOUT_S:g} s: a busy instrument would time out"))
+        warnings.append(locate_in_text(text, file, ("connection", "timeout_s"), "short_timeout",
+                                       f"is below {SHORT_TIMEOUT_S:g} s: a busy instrument would time out"))
     section = driver.section
     if isinstance(section, ScopeSection):
         adc = section.adc
@@ -124,8 +125,8 @@ def lint(driver: DriverFile, text: str, file: str) -> list[Problem]:
             largest = 2 ** (adc.bits - 1 if adc.signed else adc.bits) * adc.counts_per_code
             if largest > 2 ** (bits - 1 if adc.signed else bits):
                 warnings.append(locate_in_text(
-                    text, file, ("scope", "operations", "fetch", i, "parse"),
-                    f"a sample type wide enough for a {adc.bits}-bit ADC x {adc.counts_per_code:g} counts per code",
+                    text, file, ("scope", "operations", "fetch", i, "parse"), "narrow_samples",
+                    f"has a sample type too narrow for a {adc.bits}-bit ADC x {adc.counts_per_code:g} counts per code",
                 ))
     return warnings
 

@@ -25,6 +25,17 @@ import yaml
 from pydantic import AfterValidator, BaseModel, ConfigDict, Field, PlainValidator, ValidationError, field_validator, model_validator
 
 from sweeper.instruments.template import TemplateError, parse_template, placeholders
+from sweeper.located import (
+    Finding,
+    LocatedError,
+    Problem,
+    RuleError,
+    YamlTree,
+    problems_from_errors,
+    raise_located,
+    read_text_file,
+    sorted_unique,
+)
 
 FORMAT_VERSION = 1
 
@@ -63,25 +74,25 @@ def _to_parse_spec(value: Any) -> ParseSpec:
     if isinstance(value, str):
         if value in PARSER_WORDS:
             return ParseSpec(kind=value)
-        raise ValueError(f"expected {_PARSE_EXPECTED}")
+        raise RuleError(value, f"is not a parser (expected {_PARSE_EXPECTED})", kind="bad_parser")
     if isinstance(value, dict):
         keys = set(value)
         if "block" in keys and keys <= {"block", "byte_order"}:
             sample = value["block"]
             order = value.get("byte_order", "little")
             if sample not in SAMPLE_TYPES:
-                raise ValueError(f"block sample type must be one of {', '.join(SAMPLE_TYPES)}")
+                raise RuleError(value, f"has a block sample type that is not one of {', '.join(SAMPLE_TYPES)}", kind="bad_parser")
             if order not in BYTE_ORDERS:
-                raise ValueError(f"byte_order must be one of {', '.join(BYTE_ORDERS)}")
+                raise RuleError(value, f"has a byte_order that is not one of {', '.join(BYTE_ORDERS)}", kind="bad_parser")
             return ParseSpec(kind="block", sample=sample, byte_order=order)
         if keys == {"fields"}:
             names = value["fields"]
             if not isinstance(names, list) or not names or not all(
                 isinstance(n, str) and _NAME.match(n) for n in names
             ):
-                raise ValueError("fields must be a non-empty list of names (letters, digits, '_')")
+                raise RuleError(value, "needs fields as a non-empty list of names (letters, digits, '_')", kind="bad_parser")
             return ParseSpec(kind="fields", fields=tuple(names))
-    raise ValueError(f"expected {_PARSE_EXPECTED}")
+    raise RuleError(value, f"is not a parser (expected {_PARSE_EXPECTED})", kind="bad_parser")
 
 
 Parse = Annotated[ParseSpec, PlainValidator(_to_parse_spec)]
@@ -114,13 +125,13 @@ class Step(_Model):
     @model_validator(mode="after")
     def _one_kind(self) -> Step:
         if (self.write is None) == (self.query is None):
-            raise ValueError("a step has exactly one of 'write' or 'query'")
+            raise_located([Finding((), "a step has exactly one of 'write' or 'query'", kind="conflict")])
         if self.write is not None and (self.store or self.expect is not None or self.parse != ParseSpec()):
-            raise ValueError("'parse', 'store' and 'expect' belong to a 'query' step")
+            raise_located([Finding((), "'parse', 'store' and 'expect' belong to a 'query' step", kind="conflict")])
         if self.query is not None and self.state is not None:
-            raise ValueError("'state' belongs to a 'write' step")
+            raise_located([Finding((), "'state' belongs to a 'write' step", kind="conflict")])
         if self.parse.kind == "fields" and self.store:
-            raise ValueError("a 'fields' parser stores each field by name; drop 'store'")
+            raise_located([Finding(("store",), "is not used with a 'fields' parser, which stores each field by name: drop it", at="key", kind="conflict")])
         return self
 
     @field_validator("write", "query")
@@ -128,18 +139,18 @@ class Step(_Model):
     def _template_ok(cls, value: str | None) -> str | None:
         if value is not None:
             if not value.strip():
-                raise ValueError("empty command")
+                raise RuleError(value, "is an empty command", kind="empty")
             try:
                 parse_template(value)
             except TemplateError as exc:
-                raise ValueError(str(exc)) from None
+                raise RuleError(value, f"is not a valid template ({exc})", kind="bad_template") from None
         return value
 
     @field_validator("store", "state")
     @classmethod
     def _name_ok(cls, value: str | None) -> str | None:
         if value is not None and not _NAME.match(value):
-            raise ValueError("a name is letters, digits and '_'")
+            raise RuleError(value, "is not a name (letters, digits and '_')", kind="bad_name")
         return value
 
 
@@ -171,7 +182,7 @@ class Span(_Model):
     @model_validator(mode="after")
     def _ordered(self) -> Span:
         if not (math.isfinite(self.min) and math.isfinite(self.max)) or self.min > self.max:
-            raise ValueError(f"need finite min <= max, got min {self.min!r}, max {self.max!r}")
+            raise_located([Finding(("max",), f"needs finite min <= max (min {self.min!r}, max {self.max!r})", kind="out_of_order")])
         return self
 
 
@@ -216,9 +227,9 @@ class Vertical(_Model):
     @model_validator(mode="after")
     def _one_form(self) -> Vertical:
         if (self.volts_per_div is None) == (self.volts_per_div_range is None):
-            raise ValueError("exactly one of 'volts_per_div' (a list) or 'volts_per_div_range' ({min, max, steps})")
+            raise_located([Finding((), "give exactly one of 'volts_per_div' (a list) or 'volts_per_div_range' ({min, max, steps})", kind="conflict")])
         if self.volts_per_div is not None and not self.volts_per_div:
-            raise ValueError("'volts_per_div' needs at least one scale")
+            raise_located([Finding(("volts_per_div",), "needs at least one scale", kind="empty")])
         return self
 
 
@@ -239,7 +250,7 @@ class Horizontal(_Model):
     @model_validator(mode="after")
     def _timebase_complete(self) -> Horizontal:
         if self.mode == "seconds_per_div" and (self.divisions is None or self.seconds_per_div is None):
-            raise ValueError("mode seconds_per_div needs 'divisions' and 'seconds_per_div'")
+            raise_located([Finding((), "mode seconds_per_div needs 'divisions' and 'seconds_per_div'", kind="missing")])
         return self
 
 
@@ -306,7 +317,7 @@ def _regex_ok(pattern: str) -> str:
     try:
         re.compile(pattern)
     except re.error as exc:
-        raise ValueError(f"a regular expression ({exc})") from None
+        raise RuleError(pattern, f"is not a regular expression ({exc})", kind="bad_regex") from None
     return pattern
 
 
@@ -386,108 +397,23 @@ REQUIRED_STORES: dict[str, dict[str, tuple[str, ...]]] = {
 # Located errors
 
 
-@dataclass(frozen=True)
-class Problem:
-    """One located problem in a driver file."""
-
-    file: str
-    line: int  # 1-based
-    column: int  # 1-based
-    field: str  # dotted path, e.g. scope.vertical.divisions
-    given: str
-    expected: str
-
-    def __str__(self) -> str:
-        return f"{self.file}:{self.line}:{self.column}: {self.field}: given {self.given}; expected {self.expected}"
-
-
-class DriverFileError(ValueError):
+class DriverFileError(LocatedError):
     """A driver file could not be read or is not valid; .problems lists every problem found."""
 
-    def __init__(self, problems: Sequence[Problem]) -> None:
-        self.problems = tuple(problems)
-        super().__init__("\n".join(str(p) for p in self.problems))
 
-
-def _node_at(
-    root: yaml.Node | None, loc: Sequence[str | int]
-) -> tuple[yaml.Node | None, yaml.Node | None, list[str | int], bool]:
-    """Follow loc through the composed YAML tree: (node, the key or list holding it, path
-    actually followed, found all).
-
-    When a key is missing, the node returned is the key of the mapping that lacks it (so the
-    report points at e.g. `scope:`), or the mapping itself at the top level.
-    """
-    node = root
-    owner_key: yaml.Node | None = None
-    path: list[str | int] = []
-    for key in loc:
-        if isinstance(node, yaml.MappingNode):
-            pair = next(((k, v) for k, v in node.value if isinstance(k, yaml.ScalarNode) and k.value == str(key)), None)
-            if pair is None:
-                return (owner_key or node), None, path + [key], False
-            owner_key, node = pair
-        elif isinstance(node, yaml.SequenceNode) and isinstance(key, int) and 0 <= key < len(node.value):
-            owner_key, node = node, node.value[key]
-        else:
-            continue  # a pydantic union tag or similar: not a place in the file
-        path.append(key)
-    return node, owner_key, path, True
-
-
-def _show_node(node: yaml.Node | None) -> str:
-    if node is None:
-        return "nothing"
-    if isinstance(node, yaml.ScalarNode):
-        return repr(node.value) if node.value != "" else "an empty value"
-    if isinstance(node, yaml.MappingNode):
-        return "a mapping"
-    return "a list"
-
-
-def _dotted(path: Iterable[str | int]) -> str:
-    text = ""
-    for key in path:
-        text += f"[{key}]" if isinstance(key, int) else (f".{key}" if text else str(key))
-    return text or "(top level)"
-
-
-def _locate(file: str, root: yaml.Node | None, loc: Sequence[str | int], expected: str, missing: bool = False) -> Problem:
-    node, owner, path, found = _node_at(root, loc)
-    place = node
-    if isinstance(node, yaml.CollectionNode) and isinstance(owner, yaml.ScalarNode):
-        place = owner  # point at `scope:` rather than at the first line inside it
-    mark = place.start_mark if place is not None else None
-    line, column = (mark.line + 1, mark.column + 1) if mark is not None else (1, 1)
-    given = "nothing (missing)" if (missing or not found) else _show_node(node)
-    return Problem(file, line, column, _dotted(path if found else list(loc)), given, expected)
-
-
-def _expected_from_pydantic(error: dict[str, Any]) -> str:
-    kind = error["type"]
-    msg = str(error["msg"])
-    if kind == "missing":
-        return "this field (it is required)"
-    if kind == "extra_forbidden":
-        return "no such field here (check the spelling)"
-    for prefix in ("Value error, ", "Assertion failed, "):
-        if msg.startswith(prefix):
-            msg = msg[len(prefix) :]
-    return msg[0].lower() + msg[1:] if msg else kind
-
-
-def _semantic_problems(driver: DriverFile) -> list[tuple[tuple[str | int, ...], str]]:
-    """Checks across fields: the role's section present, placeholders and stores per operation."""
-    problems: list[tuple[tuple[str | int, ...], str]] = []
+def _semantic_problems(driver: DriverFile) -> list[tuple[tuple[str | int, ...], str, str]]:
+    """Checks across fields: the role's section present, placeholders and stores per operation.
+    Returns (location, kind, message) triples."""
+    problems: list[tuple[tuple[str | int, ...], str, str]] = []
     for other in ("source", "scope", "meter"):
         present = getattr(driver, other) is not None
         if other == driver.role and not present:
-            problems.append((("role",), f"a '{other}' section for role {other} (none found)"))
+            problems.append((("role",), "missing", f"a driver for role {other} needs a '{other}' section (none found)"))
         elif other != driver.role and present:
-            problems.append(((other,), f"no '{other}' section in a driver for role {driver.role}"))
+            problems.append(((other,), "conflict", f"a driver for role {driver.role} takes no '{other}' section"))
     for i, step in enumerate(driver.init):
         for name in placeholders(step.write or step.query or ""):
-            problems.append((("init", i), f"no placeholder in init steps (found {{{name}}})"))
+            problems.append((("init", i), "unknown_placeholder", f"init steps take no placeholders (found {{{name}}})"))
     section = getattr(driver, driver.role)
     if section is None:
         return problems
@@ -503,7 +429,7 @@ def _semantic_problems(driver: DriverFile) -> list[tuple[tuple[str | int, ...], 
                     have = ", ".join("{" + a + "}" for a in allowed) or "none"
                     problems.append(
                         ((driver.role, "operations", op_name, i, "write" if step.write is not None else "query"),
-                         f"a known placeholder; {{{name}}} is unknown here (this operation has {have})")
+                         "unknown_placeholder", f"{{{name}}} is unknown here (this operation has {have})")
                     )
             if step.store:
                 stored.add(step.store)
@@ -511,61 +437,61 @@ def _semantic_problems(driver: DriverFile) -> list[tuple[tuple[str | int, ...], 
         optional = not type(ops).model_fields[op_name].is_required()
         for need in REQUIRED_STORES.get(driver.role, {}).get(op_name, ()):
             if need not in stored and (steps or not optional):
-                problems.append(((driver.role, "operations", op_name), f"a step that stores '{need}'"))
+                problems.append(((driver.role, "operations", op_name), "missing", f"needs a step that stores '{need}'"))
         if driver.role == "scope" and op_name == "fetch":
             code_steps = [s for s in steps if s.store == "codes"]
             if code_steps and code_steps[-1].parse.kind not in ("block", "ints", "floats"):
-                problems.append(((driver.role, "operations", op_name), "'codes' parsed as a block, ints or floats"))
+                problems.append(((driver.role, "operations", op_name), "wrong_parser",
+                                 "'codes' must be parsed as a block, ints or floats"))
     if driver.role == "scope":
         needed = "set_sample_rate" if section.horizontal.mode == "sample_rate" else "set_timebase"
         if not getattr(ops, needed):
             problems.append(
-                (("scope", "operations", needed), f"an operation '{needed}' for horizontal mode {section.horizontal.mode}")
+                (("scope", "operations", needed), "missing",
+                 f"horizontal mode {section.horizontal.mode} needs an operation '{needed}'")
             )
     return problems
 
 
 def parse_driver(text: str, file: str = "<driver>") -> DriverFile:
-    """Validate driver-file text; DriverFileError lists every problem, located in the text."""
+    """Validate driver-file text; DriverFileError lists every problem, located in the text.
+
+    The YAML is read like a plan's (sweeper.located): duplicate keys, unknown tags and deep
+    nesting are problems, never silently resolved.
+    """
+    tree = YamlTree(file, text)
     try:
-        loader = yaml.SafeLoader(text)
-        try:
-            root = loader.get_single_node()
-            data = loader.construct_document(root) if root is not None else None
-        finally:
-            loader.dispose()
-    except yaml.MarkedYAMLError as exc:
-        mark = exc.problem_mark or exc.context_mark
-        line, column = (mark.line + 1, mark.column + 1) if mark else (1, 1)
-        raise DriverFileError(
-            [Problem(file, line, column, "(YAML)", f"text YAML cannot read ({exc.problem or 'unreadable'})", "well-formed YAML")]
-        ) from None
-    except yaml.YAMLError as exc:
-        raise DriverFileError([Problem(file, 1, 1, "(YAML)", f"text YAML cannot read ({exc})", "well-formed YAML")]) from None
+        root = tree.compose()
+        data = tree.build()
+    except LocatedError as exc:
+        raise DriverFileError(exc.problems) from None
     if not isinstance(data, dict):
-        raise DriverFileError([_locate(file, root, (), "a mapping of driver fields (format, name, role, ...)")])
+        given = tree.written(root) if root is not None else "nothing"
+        raise DriverFileError([Problem(file, 1, 1, (), "not_a_mapping", given, "a mapping",
+                                       "a driver file is a mapping of driver fields (format, name, role, ...)")])
+    problems = list(tree.problems)
+    driver = None
     try:
         driver = DriverFile.model_validate(data)
     except ValidationError as exc:
-        problems = [
-            _locate(file, root, tuple(e["loc"]), _expected_from_pydantic(e), e["type"] == "missing")
-            for e in exc.errors()
-        ]
-        raise DriverFileError(problems) from None
-    semantic = _semantic_problems(driver)
-    if semantic:
-        raise DriverFileError([_locate(file, root, loc, expected) for loc, expected in semantic])
+        problems.extend(problems_from_errors(exc.errors(), tree, DriverFile))
+    if driver is not None and not problems:
+        problems = [tree.at(loc, kind, message) for loc, kind, message in _semantic_problems(driver)]
+    if problems or driver is None:
+        raise DriverFileError(sorted_unique(problems))
     return driver
 
 
-def locate_in_text(text: str, file: str, loc: Sequence[str | int], expected: str) -> Problem:
+def locate_in_text(text: str, file: str, loc: Sequence[str | int], kind: str, message: str) -> Problem:
     """A Problem at the place `loc` (YAML keys / list indices) names in driver-file text, for
     checks made after parse_driver (e.g. `sweeper driver check` warnings)."""
+    tree = YamlTree(file, text)
     try:
-        root = yaml.compose(text, Loader=yaml.SafeLoader)
-    except yaml.YAMLError:
-        root = None
-    return _locate(file, root, loc, expected)
+        tree.compose()
+        tree.build()
+    except LocatedError:
+        return Problem(file, 1, 1, tuple(loc), kind, "", "", message)
+    return tree.at(tuple(loc), kind, message)
 
 
 @dataclass(frozen=True)
@@ -586,13 +512,9 @@ def load_driver(path: Path | str) -> LoadedDriver:
     """Read and validate one driver file; DriverFileError on any problem (located)."""
     path = Path(path)
     try:
-        raw = path.read_bytes()
-    except OSError as exc:
-        raise DriverFileError([Problem(str(path), 1, 1, "(file)", f"unreadable ({exc.strerror})", "a readable driver file")]) from None
-    try:
-        text = raw.decode("utf-8")
-    except UnicodeDecodeError as exc:
-        raise DriverFileError([Problem(str(path), 1, 1, "(file)", f"bytes that are not UTF-8 ({exc.reason})", "UTF-8 text")]) from None
+        raw, text = read_text_file(path, "driver file")
+    except LocatedError as exc:
+        raise DriverFileError(exc.problems) from None
     driver = parse_driver(text, str(path))
     return LoadedDriver(driver=driver, path=path, sha256=hashlib.sha256(raw).hexdigest())
 

@@ -30,6 +30,7 @@ from typing import Annotated, Any, Literal
 
 from pydantic import AfterValidator, BaseModel, BeforeValidator, ConfigDict, Field, model_validator
 
+from sweeper.located import Finding, RuleError, raise_located
 from sweeper.plan.units import Fraction, TimeS
 
 FAULT_KINDS = ("timeout", "connection_lost", "malformed_response", "scpi_error")
@@ -46,14 +47,12 @@ _DEFAULTS: dict[str, dict[str, Any]] = {
 
 
 def _rule(value: object, tail: str) -> Exception:
-    from sweeper.plan.schema import RuleError  # imported late: schema imports this module
-
     return RuleError(value, tail)
 
 
 def _whole(value: object) -> object:
     if isinstance(value, bool):
-        raise _rule(value, "is true/false, not a number")
+        raise RuleError(value, "is true/false, not a number", kind="not_a_number")
     return value
 
 
@@ -164,17 +163,15 @@ class Injection(_Part):
 
     @model_validator(mode="after")
     def _when(self) -> Injection:
-        from sweeper.plan.schema import Finding, raise_located
-
         findings = []
         if (self.at_point is None) == (self.probability is None):
-            findings.append(Finding((), "give at_point or probability (one of them)"))
+            findings.append(Finding((), "give at_point or probability (one of them)", kind="conflict"))
         if self.kind == "write_failure":
             for name in ("role", "command"):
                 if name in self.model_fields_set:
-                    findings.append(Finding((name,), "does not apply to a write_failure", at="key"))
+                    findings.append(Finding((name,), "does not apply to a write_failure", at="key", kind="conflict"))
             if self.probability is not None:
-                findings.append(Finding(("probability",), "a write_failure is injected at_point only", at="key"))
+                findings.append(Finding(("probability",), "a write_failure is injected at_point only", at="key", kind="conflict"))
         if findings:
             raise_located(findings)
         return self

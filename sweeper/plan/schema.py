@@ -11,7 +11,6 @@ from __future__ import annotations
 import difflib
 import math
 import re
-from dataclasses import dataclass
 from pathlib import Path
 from typing import Annotated, Any, Literal
 
@@ -25,9 +24,9 @@ from pydantic import (
     ValidationError,
     model_validator,
 )
-from pydantic_core import PydanticCustomError
 
 from sweeper.circuits.catalog import COMPONENTS, ComponentSpec
+from sweeper.located import Finding, RuleError, raise_located
 from sweeper.plan.faults import FaultPolicies, Injection
 from sweeper.plan.units import (
     AmplitudeVpp,
@@ -44,42 +43,6 @@ from sweeper.plan.units import (
 )
 
 PLAN_FORMAT = 1
-LOCATED = "plan_located"  # pydantic error type carrying a list of Findings in ctx["findings"]
-
-
-class RuleError(ValueError):
-    """A value of the right type that breaks a rule; `tail` reads after the value ("must be above 0 Hz")."""
-
-    def __init__(self, value: object, tail: str) -> None:
-        self.value = value
-        self.tail = tail
-        super().__init__(f"{value!r} {tail}")
-
-
-@dataclass(frozen=True)
-class Finding:
-    """One problem found by a cross-field rule, relative to the model that raised it.
-
-    loc: path of YAML keys / list indices below that model. at: "value" points at the value
-    (or, when absent, at the parent mapping), "key" at the key. follows_value: the message
-    reads after the value as written ("must be above 0 Hz").
-    """
-
-    loc: tuple[str | int, ...]
-    message: str
-    at: Literal["value", "key"] = "value"
-    follows_value: bool = False
-
-
-def raise_located(findings: list[Finding | dict[str, Any]]) -> None:
-    """Raise one pydantic error carrying every finding (Findings or nested pydantic error dicts)."""
-    lines = []
-    for item in findings:
-        if isinstance(item, Finding):
-            lines.append(f"{'.'.join(map(str, item.loc)) or '(here)'}: {item.message}")
-        else:
-            lines.append(f"{'.'.join(map(str, item.get('loc', ()))) or '(here)'}: {item.get('msg', '')}")
-    raise PydanticCustomError(LOCATED, "{summary}", {"summary": "; ".join(lines), "findings": list(findings)})
 
 
 # ---------------------------------------------------------------------------------------------
@@ -88,13 +51,13 @@ def raise_located(findings: list[Finding | dict[str, Any]]) -> None:
 
 def _no_bool(value: object) -> object:
     if isinstance(value, bool):
-        raise RuleError(value, "is true/false, not a number")
+        raise RuleError(value, "is true/false, not a number", kind="not_a_number")
     return value
 
 
 def _non_blank(value: str) -> str:
     if not value.strip():
-        raise RuleError(value, "must not be empty")
+        raise RuleError(value, "must not be empty", kind="empty")
     return value
 
 
@@ -122,7 +85,7 @@ def _at_most(limit: float, kind: str | None = None) -> AfterValidator:
 
 def _finite(value: float) -> float:
     if not math.isfinite(value):
-        raise RuleError(value, "must be finite")
+        raise RuleError(value, "must be finite", kind="not_finite")
     return value
 
 
@@ -134,7 +97,7 @@ Text = Annotated[str, AfterValidator(_non_blank)]
 def _component_any(value: object) -> float:
     """A component value when the topology (and so its kind) is not known: the unit must decide."""
     if isinstance(value, bool) or not isinstance(value, (int, float, str)):
-        raise RuleError(value, "is not a component value (expected e.g. '4.7 kOhm', '100 nF', '10 mH')")
+        raise RuleError(value, "is not a component value (expected e.g. '4.7 kOhm', '100 nF', '10 mH')", kind="bad_quantity")
     results = set()
     for kind in ("resistance", "capacitance", "inductance"):
         try:
@@ -142,7 +105,7 @@ def _component_any(value: object) -> float:
         except ValueError:
             continue
     if len(results) != 1:
-        raise RuleError(value, "is not a component value (expected e.g. '4.7 kOhm', '100 nF', '10 mH')")
+        raise RuleError(value, "is not a component value (expected e.g. '4.7 kOhm', '100 nF', '10 mH')", kind="bad_quantity")
     return results.pop()
 
 
@@ -158,7 +121,7 @@ def _load(value: object) -> float | None:
     try:
         ohm = parse_quantity(value, "resistance")  # type: ignore[arg-type]
     except ValueError:
-        raise RuleError(value, "is not a load setting (expected 'high-z' or a resistance, e.g. '50 Ohm')") from None
+        raise RuleError(value, "is not a load setting (expected 'high-z' or a resistance, e.g. '50 Ohm')", kind="bad_quantity") from None
     if math.isinf(ohm):
         return None
     if ohm <= 0:
@@ -170,11 +133,11 @@ def _root(value: object) -> complex:
     """A zero or pole: a number in Hz (real root, s-plane / 2 pi) or a pair [re, im] in Hz."""
     if isinstance(value, (list, tuple)):
         if len(value) != 2:
-            raise RuleError(value, "is not a root (expected a number in Hz or a pair [re, im] in Hz)")
+            raise RuleError(value, "is not a root (expected a number in Hz or a pair [re, im] in Hz)", kind="bad_quantity")
         return complex(parse_quantity(value[0], "frequency"), parse_quantity(value[1], "frequency"))
     if isinstance(value, (int, float, str)) and not isinstance(value, bool):
         return complex(parse_quantity(value, "frequency"), 0.0)
-    raise RuleError(value, "is not a root (expected a number in Hz or a pair [re, im] in Hz)")
+    raise RuleError(value, "is not a root (expected a number in Hz or a pair [re, im] in Hz)", kind="bad_quantity")
 
 
 Root = Annotated[complex, BeforeValidator(_root)]
@@ -182,7 +145,7 @@ Root = Annotated[complex, BeforeValidator(_root)]
 
 def _non_empty_list(value: list) -> list:
     if not value:
-        raise RuleError(value, "is empty: list at least one frequency")
+        raise RuleError(value, "is empty: list at least one frequency", kind="empty")
     return value
 
 
@@ -197,7 +160,7 @@ def _circuit_name(value: str) -> str:
             value,
             f"is not a known circuit (expected one of: {', '.join(COMPONENTS)})"
             + _did_you_mean(value, list(COMPONENTS)),
-        )
+        kind="unknown_name")
     return value
 
 
@@ -269,7 +232,7 @@ class Bench(_Section):
         for role in needed:
             if getattr(self, role) is None:
                 findings.append(
-                    Finding((role,), f"{self.mode} mode needs a {role}: add {role}: {{resource: ..., driver: ...}}")
+                    Finding((role,), f"{self.mode} mode needs a {role}: add {role}: {{resource: ..., driver: ...}}", kind="missing")
                 )
         if findings:
             raise_located(findings)
@@ -294,7 +257,7 @@ class Stimulus(_Section):
                     ("amplitude",),
                     f"{format_quantity(self.amplitude_vpp, 'amplitude')} is above max_amplitude ({cap}); "
                     "the tool refuses to exceed the cap",
-                )
+                kind="over_cap")
             )
         elif abs(self.offset_v) + self.amplitude_vpp / 2 > self.max_amplitude_vpp / 2:
             findings.append(
@@ -302,7 +265,7 @@ class Stimulus(_Section):
                     ("offset",),
                     f"offset {format_quantity(self.offset_v, 'voltage')} plus half the amplitude swings beyond "
                     f"+-{format_quantity(self.max_amplitude_vpp / 2, 'voltage')}, half of max_amplitude ({cap})",
-                )
+                kind="over_cap")
             )
         if findings:
             raise_located(findings)
@@ -329,12 +292,12 @@ class Sweep(_Section):
             for name in ("start_hz", "stop_hz", "points", "points_per_decade", "spacing"):
                 if self._given(name):
                     findings.append(
-                        Finding((self._alias(name),), "is not allowed with an explicit frequencies list", at="key")
+                        Finding((self._alias(name),), "is not allowed with an explicit frequencies list", at="key", kind="conflict")
                     )
             seen: set[float] = set()
             for index, frequency_hz in enumerate(self.frequencies_hz):
                 if frequency_hz in seen:
-                    findings.append(Finding(("frequencies", index), "is listed twice", follows_value=True))
+                    findings.append(Finding(("frequencies", index), "is listed twice", follows_value=True, kind="duplicate"))
                 seen.add(frequency_hz)
         else:
             for name in ("start_hz", "stop_hz"):
@@ -342,15 +305,15 @@ class Sweep(_Section):
                     findings.append(
                         Finding(
                             (self._alias(name),), f"missing {self._alias(name)}: give start and stop, or frequencies"
-                        )
+                        , kind="missing")
                     )
             if self.points is None and self.points_per_decade is None:
-                findings.append(Finding((), "give points_per_decade or points (or an explicit frequencies list)"))
+                findings.append(Finding((), "give points_per_decade or points (or an explicit frequencies list)", kind="missing"))
             if self.points is not None and self.points_per_decade is not None:
-                findings.append(Finding(("points",), "give points or points_per_decade, not both", at="key"))
+                findings.append(Finding(("points",), "give points or points_per_decade, not both", at="key", kind="conflict"))
             if self.points_per_decade is not None and self.spacing == "linear":
                 findings.append(
-                    Finding(("points_per_decade",), "needs log spacing; give points for linear spacing", at="key")
+                    Finding(("points_per_decade",), "needs log spacing; give points for linear spacing", at="key", kind="conflict")
                 )
             if self.start_hz is not None and self.stop_hz is not None and self.start_hz >= self.stop_hz:
                 findings.append(
@@ -358,7 +321,7 @@ class Sweep(_Section):
                         ("stop",),
                         f"stop ({format_quantity(self.stop_hz, 'frequency')}) must be above start "
                         f"({format_quantity(self.start_hz, 'frequency')})",
-                    )
+                    kind="out_of_order")
                 )
         if findings:
             raise_located(findings)
@@ -393,7 +356,7 @@ class Acquisition(_Section):
             self.max_averages = max(self.max_averages, self.averages)
         elif self.max_averages < self.averages:
             raise_located(
-                [Finding(("max_averages",), f"must be at least averages ({self.averages})", follows_value=True)]
+                [Finding(("max_averages",), f"must be at least averages ({self.averages})", follows_value=True, kind="out_of_range")]
             )
         return self
 
@@ -458,7 +421,7 @@ def _component_findings(
                     f"unknown component {name!r} for circuit {circuit!r} (expected: {names})"
                     + _did_you_mean(str(name), list(by_name)),
                     at="key",
-                )
+                kind="unknown_name")
             )
             continue
         if nested and not isinstance(entry, dict):
@@ -477,10 +440,11 @@ def _component_findings(
                         loc,
                         f"must be {'at least' if zero_ok else 'above'} {format_quantity(0, spec.kind)}",
                         follows_value=True,
+                        kind="out_of_range",
                     )
                 )
         except ValueError as exc:
-            findings.append(Finding(loc, str(exc)))
+            findings.append(Finding(loc, str(exc), kind="bad_quantity"))
             value_si = 1.0
         prepared[name] = {**entry, "value": value_si} if nested else value_si
     return prepared, findings
@@ -514,6 +478,7 @@ class Model(_Section):
                         Finding(
                             ("components", spec.name),
                             f"circuit {circuit!r} needs component {spec.name} ({spec.kind})",
+                            kind="missing",
                         )
                     )
             data = {**data, "components": prepared}
@@ -534,7 +499,7 @@ class Model(_Section):
             for name in _RATIONAL_ONLY:
                 if self._given(name):
                     findings.append(
-                        Finding((self._alias(name),), "is only for circuit 'rational'", at="key")
+                        Finding((self._alias(name),), "is only for circuit 'rational'", at="key", kind="conflict")
                     )
             return findings
         for alias, roots in (("zeros", self.zeros_hz), ("poles", self.poles_hz)):
@@ -546,6 +511,7 @@ class Model(_Section):
                             f"needs its conjugate [{root.real:g}, {-root.imag:g}] too (a real circuit has "
                             "complex roots in conjugate pairs)",
                             follows_value=True,
+                            kind="unpaired_root",
                         )
                     )
                 if alias == "poles" and root.real > 0:
@@ -554,6 +520,7 @@ class Model(_Section):
                             (alias, index),
                             "is in the right half-plane: the circuit would be unstable",
                             follows_value=True,
+                            kind="unstable",
                         )
                     )
         return findings
@@ -590,7 +557,7 @@ class Mask(_Section):
             findings.append(
                 Finding(
                     ("to",), f"must be above from ({format_quantity(self.from_hz, 'frequency')})", follows_value=True
-                )
+                , kind="out_of_order")
             )
         for low, high, kind in (("gain_min_db", "gain_max_db", "gain"), ("phase_min_deg", "phase_max_deg", "angle")):
             lo, hi = getattr(self, low), getattr(self, high)
@@ -600,11 +567,11 @@ class Mask(_Section):
                         (self._alias(high),),
                         f"must be at least {self._alias(low)} ({format_quantity(lo, kind)})",
                         follows_value=True,
-                    )
+                    kind="out_of_order")
                 )
         bounds = ("gain_min_db", "gain_max_db", "phase_min_deg", "phase_max_deg")
         if all(getattr(self, name) is None for name in bounds):
-            findings.append(Finding((), "a mask needs at least one of gain_min, gain_max, phase_min, phase_max"))
+            findings.append(Finding((), "a mask needs at least one of gain_min, gain_max, phase_min, phase_max", kind="missing"))
         if findings:
             raise_located(findings)
         return self
@@ -622,7 +589,7 @@ class MonteCarlo(_Section):
     def _percentiles(self) -> MonteCarlo:
         low, high = self.percentiles
         if not 0.0 <= low < high <= 100.0:
-            raise_located([Finding(("percentiles",), "must be two percentiles with 0 <= low < high <= 100")])
+            raise_located([Finding(("percentiles",), "must be two percentiles with 0 <= low < high <= 100", kind="out_of_range")])
         return self
 
 
@@ -669,7 +636,7 @@ class Metadata(_Section):
 
 def _format_version(value: int) -> int:
     if value != PLAN_FORMAT:
-        raise RuleError(value, f"is not a plan format this sweeper reads (expected {PLAN_FORMAT})")
+        raise RuleError(value, f"is not a plan format this sweeper reads (expected {PLAN_FORMAT})", kind="unsupported_version")
     return value
 
 

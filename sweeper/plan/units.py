@@ -33,6 +33,8 @@ from typing import Annotated
 
 from pydantic import BeforeValidator
 
+from sweeper.located.rules import RuleError
+
 PREFIXES: dict[str, int] = {  # SI prefix -> power of ten
     "f": -15,
     "p": -12,
@@ -181,12 +183,14 @@ KINDS: dict[str, _Kind] = {
 }
 
 
-class QuantityError(ValueError):
-    """A value that is not a quantity of the expected kind; the message says what was expected."""
+class QuantityError(RuleError):
+    """A value that is not a quantity of the expected kind; the message says what was expected.
+
+    quantity: the kind of quantity wanted ('frequency', 'resistance', ...).
+    """
 
     def __init__(self, value: object, kind: str, message: str | None = None) -> None:
-        self.value = value
-        self.kind = kind
+        self.quantity = kind
         spec = KINDS.get(kind)
         if message is None:
             if spec is None:
@@ -194,7 +198,16 @@ class QuantityError(ValueError):
             else:
                 message = f"{_show(value)} is not {spec.noun} (expected {spec.expected})"
         self.expected = spec.expected if spec else ""
-        super().__init__(message)
+        self.message = message
+        super().__init__(value, message, kind="bad_quantity")
+        self.args = (message,)
+
+    def sentence(self, shown: str) -> str:
+        """The whole message: it names the value itself."""
+        return self.message
+
+    def __str__(self) -> str:
+        return self.message
 
 
 def _show(value: object) -> str:

@@ -6,6 +6,7 @@ from pathlib import Path
 
 import pytest
 
+from sweeper.located import Problem
 from sweeper.instruments.driverfile import (
     DriverFileError,
     driver_search_path,
@@ -73,92 +74,116 @@ def test_good_text_parses() -> None:
     assert driver.scope is not None and driver.scope.vertical.volts_per_div == [0.01, 0.1, 1.0]
 
 
-def _problems(text: str) -> list[str]:
+def _problems(text: str) -> list[Problem]:
     with pytest.raises(DriverFileError) as info:
         parse_driver(text, "drv.yaml")
-    return [str(p) for p in info.value.problems]
+    assert str(info.value) == "\n".join(str(p) for p in info.value.problems)  # rendered in one place
+    return info.value.problems
 
 
-def test_schema_errors_carry_line_column_field_given_expected() -> None:
+def _where(problems: list[Problem]) -> list[tuple[int, int, str, str]]:
+    """(line, column, field, kind) of each problem: what tests match on, never the wording."""
+    return [(p.line, p.column, p.field, p.kind) for p in problems]
+
+
+def test_schema_errors_carry_line_column_field_kind_given_expected() -> None:
     text = GOOD_SCOPE.replace("divisions: 8", "divisions: eight").replace(
         "mode: sample_rate", "mode: sample_rate\n    speed: 3"
     ).replace("format: 1", "format: 1\nconnection: {timeout_s: -2}")
     problems = _problems(text)
-    # all problems are reported at once, in file order of the schema
-    assert problems == [
-        "drv.yaml:2:25: connection.timeout_s: given '-2'; expected input should be greater than 0",
-        "drv.yaml:8:16: scope.vertical.divisions: given 'eight'; expected input should be a valid number, "
-        "unable to parse string as a number",
-        "drv.yaml:12:12: scope.horizontal.speed: given '3'; expected no such field here (check the spelling)",
+    # all problems are reported at once, in file order
+    assert _where(problems) == [
+        (2, 25, "connection.timeout_s", "out_of_range"),
+        (8, 16, "scope.vertical.divisions", "not_a_number"),
+        (12, 5, "scope.horizontal.speed", "unknown_key"),
     ]
+    assert [p.given for p in problems] == ["-2", "'eight'", "3"]
+    assert problems[0].expected == "above 0"
+    # an unknown key is answered with the keys that are valid there
+    assert "mode" in problems[2].expected and "sample_rate_hz" in problems[2].expected
 
 
 def test_missing_field_points_at_its_parent() -> None:
     text = GOOD_SCOPE.replace("  samples: {min: 100, max: 10000}\n", "")
-    assert _problems(text) == ["drv.yaml:5:1: scope.samples: given nothing (missing); expected this field (it is required)"]
+    assert _where(_problems(text)) == [(5, 1, "scope.samples", "missing")]
 
 
 def test_unknown_placeholder_is_located() -> None:
     text = GOOD_SCOPE.replace("SCALE {volts_per_div}", "SCALE {volts}")
     (problem,) = _problems(text)
-    assert problem.startswith("drv.yaml:15:25: scope.operations.set_scale[0].write: given 'CH{channel}:SCALE {volts}'")
-    assert "{volts} is unknown here" in problem
+    assert _where([problem]) == [(15, 25, "scope.operations.set_scale[0].write", "unknown_placeholder")]
+    assert problem.given == '"CH{channel}:SCALE {volts}"'
+    assert "{volts}" in problem.text
 
 
 def test_malformed_template_is_located() -> None:
     text = GOOD_SCOPE.replace('"RATE {sample_rate_hz}"', '"RATE {__import__(\'os\')}"')
     (problem,) = _problems(text)
-    assert problem.startswith("drv.yaml:16:31: scope.operations.set_sample_rate[0].write:")
-    assert "malformed placeholder" in problem
+    assert _where([problem]) == [(16, 31, "scope.operations.set_sample_rate[0].write", "bad_template")]
 
 
 def test_missing_store_and_bad_parser() -> None:
     text = GOOD_SCOPE.replace("y_origin, y_reference", "y_origin").replace("parse: ints", "parse: {block: int12}")
-    problems = _problems(text)
-    assert problems == [
-        "drv.yaml:19:40: scope.operations.fetch[0].parse: given a mapping; expected block sample type must be one "
-        "of int8, int16, float32",
-    ]
+    assert _where(_problems(text)) == [(19, 47, "scope.operations.fetch[0].parse", "bad_parser")]
     text = GOOD_SCOPE.replace("y_origin, y_reference", "y_origin")
-    assert _problems(text) == [
-        "drv.yaml:20:5: scope.operations.scaling: given a list; expected a step that stores 'y_reference'"
-    ]
+    (problem,) = _problems(text)
+    assert _where([problem]) == [(20, 5, "scope.operations.scaling", "missing")]
+    assert "y_reference" in problem.text
 
 
 def test_role_section_must_match() -> None:
     text = GOOD_SCOPE.replace("role: scope", "role: meter")
-    assert _problems(text) == [
-        "drv.yaml:5:1: scope: given a mapping; expected no 'scope' section in a driver for role meter",
-        "drv.yaml:3:7: role: given 'meter'; expected a 'meter' section for role meter (none found)",
-    ]
+    assert _where(_problems(text)) == [(3, 7, "role", "missing"), (5, 1, "scope", "conflict")]
 
 
 def test_step_kind_and_regex_errors() -> None:
     text = GOOD_SCOPE.replace('arm: [{write: "RUN"}', 'arm: [{write: "RUN", query: "X?"}').replace(
         "'^Maker,Model,'", "'(unclosed'"
     )
+    assert _where(_problems(text)) == [
+        (4, 12, "identify[0]", "bad_regex"),
+        (18, 11, "scope.operations.arm[0]", "conflict"),
+    ]
+
+
+def test_duplicate_keys_are_refused_not_resolved() -> None:
+    # A second `fetch:` would otherwise silently win (PyYAML keeps the last duplicate).
+    text = GOOD_SCOPE.replace('    scaling:\n', '    fetch: [{write: "*RST"}]\n    scaling:\n')
     problems = _problems(text)
-    assert problems[0].startswith("drv.yaml:4:12: identify[0]: given '(unclosed'; expected a regular expression")
-    assert problems[1] == (
-        "drv.yaml:18:11: scope.operations.arm[0]: given a mapping; expected a step has exactly one of 'write' or 'query'"
-    )
+    assert (20, 5, "scope.operations.fetch", "duplicate_key") in _where(problems)
 
 
 def test_yaml_syntax_error_is_located() -> None:
     (problem,) = _problems("format: 1\nname: [unclosed\n")
-    assert problem.startswith("drv.yaml:3:1: (YAML): given text YAML cannot read")
+    assert _where([problem]) == [(3, 1, "", "yaml_syntax")]
 
 
 def test_not_a_mapping() -> None:
     (problem,) = _problems("- just\n- a list\n")
-    assert problem.startswith("drv.yaml:1:1: (top level): given a list")
+    assert _where([problem]) == [(1, 1, "", "not_a_mapping")]
 
 
 def test_load_driver_reports_the_path(tmp_path: Path) -> None:
     path = tmp_path / "broken.yaml"
     path.write_text(GOOD_SCOPE.replace("divisions: 8", "divisions: 0"))
-    with pytest.raises(DriverFileError, match=rf"^{path}:7:16: scope.vertical.divisions: given '0'"):
+    with pytest.raises(DriverFileError) as info:
         load_driver(path)
+    (problem,) = info.value.problems
+    assert (problem.file, problem.line, problem.column, problem.field, problem.kind) == (
+        str(path), 7, 16, "scope.vertical.divisions", "out_of_range")
+    assert str(problem).startswith(f"{path}:7:16: scope.vertical.divisions: ")
+
+
+def test_unreadable_and_non_utf8_files(tmp_path: Path) -> None:
+    with pytest.raises(DriverFileError) as info:
+        load_driver(tmp_path / "absent.yaml")
+    assert info.value.kinds == ["file_missing"]
+    latin = tmp_path / "latin.yaml"
+    latin.write_bytes("name: caf\u00e9\n".encode("latin-1"))
+    with pytest.raises(DriverFileError) as info:
+        load_driver(latin)
+    assert info.value.kinds == ["not_utf8"]
+    assert (info.value.problems[0].line, info.value.problems[0].column) == (1, 10)
 
 
 def test_search_order(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:

@@ -126,7 +126,8 @@ def _check(text: str) -> None:
         for problem in error.problems:
             assert problem.file == "fuzz.yaml"
             assert problem.line >= 0 and problem.column >= 0
-            assert problem.expected
+            assert problem.text and problem.kind  # a sentence and a stable kind for programs
+            assert problem.kind != "invalid", str(problem)  # every problem a plan can have is a named kind
             assert str(problem).startswith("fuzz.yaml")
         assert len(str(error).splitlines()) >= len(error.problems)
     else:
