@@ -27,8 +27,8 @@ from sweeper.instruments.bench import open_bench
 from sweeper.measure.engine import Instruments, prepare_source, sweep
 from sweeper.measure.schedule import samples_for_uncertainty, settle_time_s, time_constants_for_target
 from sweeper.plan import load_plan_text
-from sweeper.prediction import nominal_circuit
-from sweeper.runner import engine_settings, execute_run, plan_frequencies, predict_limits
+from sweeper.verdict.prediction import nominal_circuit
+from sweeper.run.runner import engine_settings, execute_run, plan_frequencies, predict_limits
 
 REPO = Path(__file__).resolve().parents[1]
 

@@ -25,8 +25,8 @@ from sweeper.analysis import extract
 from sweeper.instruments.bench import open_bench
 from sweeper.measure.engine import Instruments, prepare_source, sweep
 from sweeper.plan import load_plan_text
-from sweeper.prediction import nominal_circuit
-from sweeper.runner import engine_settings, plan_frequencies, predict_limits
+from sweeper.verdict.prediction import nominal_circuit
+from sweeper.run.runner import engine_settings, plan_frequencies, predict_limits
 from sweeper.store.runfile import points_frame
 
 PLAN = """

@@ -34,8 +34,8 @@ from scipy import signal
 from sweeper.instruments.bench import open_bench, sim_config
 from sweeper.measure.engine import Instruments, prepare_source, sweep
 from sweeper.plan import load_plan_text
-from sweeper.prediction import nominal_circuit, predict_limits
-from sweeper.runner import engine_settings, plan_frequencies
+from sweeper.verdict.prediction import nominal_circuit, predict_limits
+from sweeper.run.runner import engine_settings, plan_frequencies
 
 R_OHM, C_F, RP_OHM, CP_F = 1.6e3, 100e-9, 1e6, 15e-12
 

@@ -15,7 +15,7 @@ from datetime import UTC, datetime
 
 import numpy as np
 
-from sweeper.judge import wrap_deg
+from sweeper.verdict import wrap_deg
 from sweeper.report.figures import interpolate_log_f, sorted_finite, unwrap_deg
 
 

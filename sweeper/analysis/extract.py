@@ -57,7 +57,7 @@ from scipy import optimize, stats
 
 from sweeper.circuits import COMPONENTS, Loading, build_circuit
 from sweeper.circuits.figures import corner_analytic_hz, f0_hz, q_factor
-from sweeper.judge import wrap_deg
+from sweeper.verdict import wrap_deg
 from sweeper.measure.point import Flag
 
 LEVEL = 0.95  # confidence level of every interval
@@ -631,7 +631,7 @@ def extract(frame: Any, metadata: Mapping[str, Any], *, reference: str | None = 
     Raises ExtractionError when the run holds no readable plan or the model cannot be fitted.
     """
     from sweeper.plan import PlanError, load_plan_text
-    from sweeper.prediction import nominal_values, plan_loading, tolerances
+    from sweeper.verdict.prediction import nominal_values, plan_loading, tolerances
 
     text = metadata.get("plan_yaml")
     if not isinstance(text, str) or not text.strip():

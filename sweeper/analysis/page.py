@@ -32,7 +32,7 @@ from sweeper.analysis.extract import (
     format_value,
 )
 from sweeper.analysis.plots import drift_figure, spread_figure
-from sweeper.judge import VERDICT_LABELS
+from sweeper.verdict import VERDICT_LABELS
 from sweeper.report.figures import format_hz
 from sweeper.report.html import CSS, esc, inline_svg
 from sweeper.report.plot import difference_figure, figure_svg, overlay_figure, run_names

@@ -16,7 +16,7 @@ from sweeper.cli.common import (
     open_catalog,
     read_or_exit,
 )
-from sweeper.judge import VERDICT_LABELS
+from sweeper.verdict import VERDICT_LABELS
 from sweeper.measure.point import Verdict
 from sweeper.plan import format_quantity
 

@@ -19,7 +19,7 @@ from sweeper.cli.common import (
     console,
     err_console,
 )
-from sweeper.judge import VERDICT_LABELS
+from sweeper.verdict import VERDICT_LABELS
 from sweeper.measure.point import Verdict
 from sweeper.plan import format_quantity, parse_quantity
 
@@ -48,7 +48,7 @@ def _time_option(text: str | None, option: str) -> float | None:
 
 def render_drift(table: pd.DataFrame, sweeps: int, campaign_id: str) -> None:
     """The drift table (rich) and the campaign's largest changes."""
-    from sweeper.campaign_drift import largest_changes
+    from sweeper.campaigns.drift import largest_changes
 
     out = Table(title=f"Drift against sweep 1: campaign {campaign_id}, {sweeps} sweep(s)", box=box.SIMPLE_HEAD,
                 caption="Δ: the largest change of any later sweep; sweep: its number and start on the campaign clock")
@@ -83,7 +83,7 @@ def render_drift(table: pd.DataFrame, sweeps: int, campaign_id: str) -> None:
 
 
 def _write_csv(table: pd.DataFrame, path: str) -> None:
-    from sweeper.campaign import write_drift_csv
+    from sweeper.campaigns.campaign import write_drift_csv
 
     try:
         write_drift_csv(table, path)
@@ -112,7 +112,7 @@ def repeat(plan_path: str, out_dir: str, count: int | None, every: str | None, f
     not in real time, the waits between sweeps are skipped. Exit 0 when every sweep passed,
     1 when one did not pass cleanly, 3 on a run error, 130 when stopped.
     """
-    from sweeper.campaign import (
+    from sweeper.campaigns.campaign import (
         CampaignReadError,
         Schedule,
         SkippingClock,
@@ -121,7 +121,7 @@ def repeat(plan_path: str, out_dir: str, count: int | None, every: str | None, f
         result_sweeps,
         run_campaign,
     )
-    from sweeper.campaign_drift import drift_table
+    from sweeper.campaigns.drift import drift_table
 
     every_s, duration_s = _time_option(every, "--every"), _time_option(for_, "--for")
     try:
@@ -195,7 +195,7 @@ def repeat(plan_path: str, out_dir: str, count: int | None, every: str | None, f
 def drift(campaign_id: str, runs_dir: str, csv_path: str | None) -> None:
     """Largest change in gain and phase against a campaign's first sweep, per frequency
     (CAMPAIGN_ID: a campaign id or a unique prefix of one)."""
-    from sweeper.campaign import (
+    from sweeper.campaigns.campaign import (
         CampaignError,
         CampaignReadError,
         campaign_drift,

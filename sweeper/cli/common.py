@@ -47,7 +47,7 @@ def checked_plan_or_exit(plan_path: str):
 
     Returns (plan, check report) for a sound plan.
     """
-    from sweeper.checking import check_plan
+    from sweeper.run.check import check_plan
 
     plan = load_plan_or_exit(plan_path)
     report = check_plan(plan)

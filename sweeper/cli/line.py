@@ -23,13 +23,13 @@ from sweeper.cli.common import (
     console,
     err_console,
 )
-from sweeper.judge import VERDICT_LABELS, VERDICT_MEANINGS
+from sweeper.verdict import VERDICT_LABELS, VERDICT_MEANINGS
 from sweeper.measure.point import Verdict
 from sweeper.plan import format_quantity
 
 if TYPE_CHECKING:
-    from sweeper.production import BoardTest, ShiftSummary, Tally
-    from sweeper.runner import RunOutcome
+    from sweeper.campaigns.production import BoardTest, ShiftSummary, Tally
+    from sweeper.run.runner import RunOutcome
 
 # Our own 5-row block letters, drawn with '#' and widened when rendered.
 _GLYPHS: dict[str, tuple[str, ...]] = {
@@ -70,7 +70,7 @@ def tally_line(t: Tally) -> str:
 
 def result_panel(test: BoardTest, outcome: RunOutcome) -> Panel:
     """The large PASS / FAIL / ERROR panel of one board, with its failing frequencies."""
-    from sweeper.production import failing_points
+    from sweeper.campaigns.production import failing_points
 
     verdict = Verdict(outcome.verdict)
     parts = [Align.center(Text(big_text(test.result), no_wrap=True))]
@@ -126,7 +126,7 @@ def line(plan_path: str, out_dir: str, summary_out: str | None, waveforms: bool)
     'y' to be retested. Exit 0 when the shift ends normally (the verdicts are in the tally),
     3 when a run ended in an instrument or run error, 130 when interrupted.
     """
-    from sweeper.production import SUMMARY_SUFFIXES, run_shift, write_shift_summary
+    from sweeper.campaigns.production import SUMMARY_SUFFIXES, run_shift, write_shift_summary
 
     if summary_out and Path(summary_out).suffix.lower() not in SUMMARY_SUFFIXES:
         err_console.print(f"--summary-out: {summary_out!r} needs the suffix .csv or .json", markup=False)

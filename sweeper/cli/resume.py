@@ -1,4 +1,4 @@
-"""`resume`: finish an interrupted run from its next unmeasured point (sweeper.resume)."""
+"""`resume`: finish an interrupted run from its next unmeasured point (sweeper.run.resume)."""
 
 from __future__ import annotations
 
@@ -9,7 +9,7 @@ import click
 
 from sweeper.cli import main
 from sweeper.cli.common import RUNS_OPTION, console, err_console, flag_names
-from sweeper.judge import VERDICT_LABELS
+from sweeper.verdict import VERDICT_LABELS
 from sweeper.measure.point import Point, Verdict
 from sweeper.plan import format_quantity
 
@@ -26,7 +26,7 @@ def resume(run: str, runs_dir: str, plan_path: str | None) -> None:
     interruption in the run, then measures the remaining points into the same run file.
     """
     from sweeper.cli.sweeps import render_outcome
-    from sweeper.resume import ResumeRefused, resume_run
+    from sweeper.run.resume import ResumeRefused, resume_run
 
     stop_requested = {"flag": False}
 

@@ -29,7 +29,7 @@ from sweeper.cli.common import (
     err_console,
     flag_names,
 )
-from sweeper.judge import VERDICT_LABELS, VERDICT_MEANINGS
+from sweeper.verdict import VERDICT_LABELS, VERDICT_MEANINGS
 from sweeper.measure.point import Point, Verdict
 from sweeper.plan import format_quantity
 
@@ -72,7 +72,7 @@ def check(plan_path: str) -> None:
 @click.option("--waveforms/--no-waveforms", default=False, help="Also store every capture's raw waveforms.")
 def run(plan_path: str, out_dir: str, waveforms: bool) -> None:
     """Run a test plan's sweep, judge it and file the run."""
-    from sweeper.runner import execute_run
+    from sweeper.run.runner import execute_run
 
     plan, report = checked_plan_or_exit(plan_path)
     console.print(f"[bold]{plan.name}[/]  {plan.dut.board} ({plan.dut.serial})  {report.points} points, "

@@ -157,7 +157,7 @@ def sim_circuit(plan: Any) -> Any:
     """The true DUT of a simulated bench: the model's topology with its nominal values, overridden
     by bench.simulation.components, under the plan's loading, referenced to the DUT input node
     (the simulator adds its generator's own source resistance)."""
-    from sweeper.prediction import true_circuit
+    from sweeper.verdict.prediction import true_circuit
 
     return true_circuit(plan, reference="input")
 

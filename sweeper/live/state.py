@@ -16,7 +16,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from sweeper.judge import VERDICT_LABELS
+from sweeper.verdict import VERDICT_LABELS
 from sweeper.measure.point import Verdict
 from sweeper.store.journal import read_journal
 from sweeper.store.runfile import FINISH_EVENT, points_frame, read_run

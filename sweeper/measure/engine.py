@@ -14,7 +14,7 @@ from datetime import datetime, timedelta, timezone
 import numpy as np
 
 from sweeper.instruments.roles import Capture, Clock, Meter, Scope, Source
-from sweeper.judge import Limits, judge_point
+from sweeper.verdict import Limits, judge_point
 from sweeper.measure.gainphase import GainPhase, average_gain_phase, gain_phase
 from sweeper.measure.point import Flag, Point
 from sweeper.measure.schedule import HARMONICS, Window, choose_window, incoherent_frequency_hz, settle_time_s

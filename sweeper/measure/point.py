@@ -24,7 +24,7 @@ class Flag(enum.IntFlag):
 
 
 class Verdict(enum.IntEnum):
-    """Per-point and per-run judgement (ILAC-G8 style; see sweeper.judge)."""
+    """Per-point and per-run judgement (ILAC-G8 style; see sweeper.verdict)."""
 
     NOT_JUDGED = 0
     PASS = 1  # inside the limits (by at least the expanded uncertainty under the guarded rule)

@@ -19,7 +19,7 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
-from sweeper.judge import wrap_deg
+from sweeper.verdict import wrap_deg
 
 HALF_POWER_DB = 10.0 * math.log10(0.5)  # -3.0103 dB: |H| = passband / sqrt(2)
 ROLLOFF_DEPTH_DB = 20.0  # roll-off fitted only this far below the passband, dB (well past the corner)

@@ -25,7 +25,7 @@ import numpy as np
 import pandas as pd
 from matplotlib.figure import Figure
 
-from sweeper.judge import VERDICT_LABELS, VERDICT_MEANINGS, run_verdict
+from sweeper.verdict import VERDICT_LABELS, VERDICT_MEANINGS, run_verdict
 from sweeper.measure.point import Verdict
 from sweeper.report.figures import FIGURE_KEYS, FIGURE_LABELS, derived_figures, figures_from_arrays
 from sweeper.report.plot import bode_figure, difference_figure, figure_png, figure_svg, overlay_figure, run_names

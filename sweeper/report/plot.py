@@ -22,7 +22,7 @@ from matplotlib.figure import Figure
 from matplotlib.ticker import MultipleLocator
 from scipy.interpolate import PchipInterpolator
 
-from sweeper.judge import VERDICT_LABELS, wrap_deg
+from sweeper.verdict import VERDICT_LABELS, wrap_deg
 from sweeper.measure.point import Verdict
 from sweeper.report.figures import (
     difference_to_reference,

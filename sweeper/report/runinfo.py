@@ -3,7 +3,7 @@
 A run's metadata comes from `sweeper.store.runfile.read_run` (or is built the same way): the
 run verdict may sit in the finish summary (a Verdict name), in `verdict` (a name or an int)
 or in `verdict_name`; an unfinished run states none, and its verdict is then the worst of
-its points (`sweeper.judge.run_verdict`).
+its points (`sweeper.verdict.run_verdict`).
 """
 
 from __future__ import annotations
@@ -14,7 +14,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from sweeper.judge import VERDICT_LABELS, run_verdict
+from sweeper.verdict import VERDICT_LABELS, run_verdict
 from sweeper.measure.point import Flag, Verdict
 
 FAILING_VERDICTS: tuple[Verdict, ...] = (Verdict.FAIL_UNCERTAIN, Verdict.FAIL)

@@ -19,8 +19,8 @@ from sweeper.instruments.bench import open_bench
 from sweeper.measure.engine import Instruments, prepare_source
 from sweeper.measure.engine import sweep as engine_sweep
 from sweeper.plan import load_plan_text
-from sweeper.prediction import nominal_circuit, predict_limits
-from sweeper.runner import engine_settings, execute_run, plan_frequencies
+from sweeper.verdict.prediction import nominal_circuit, predict_limits
+from sweeper.run.runner import engine_settings, execute_run, plan_frequencies
 from sweeper.store.runfile import points_frame, read_run
 
 PLAN = """
@@ -78,7 +78,7 @@ def plan_text(**fields: Any) -> str:
 
 
 def measure(**fields: Any) -> tuple[pd.DataFrame, dict[str, Any]]:
-    """The same sweep on the same simulated bench, wired as sweeper.runner.execute_run wires it,
+    """The same sweep on the same simulated bench, wired as sweeper.run.runner.execute_run wires it,
     but without writing a journal and run file (the store costs more than the sweep here and is
     tested elsewhere): (points frame laid out as read_run gives it, metadata with the plan text)."""
     plan = load_plan_text(plan_text(**fields), "plan.yaml")

@@ -31,7 +31,7 @@ from sweeper.analysis.extract import (
 from sweeper.circuits import Loading
 from sweeper.plan import load_plan
 from sweeper.report.figures import derived_figures
-from sweeper.runner import execute_run
+from sweeper.run.runner import execute_run
 from sweeper.store.runfile import read_run
 
 R_OHM = 1.6e3

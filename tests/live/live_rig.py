@@ -13,7 +13,7 @@ from typing import Any
 
 from sweeper.measure.point import Point
 from sweeper.plan import load_plan
-from sweeper.runner import execute_run
+from sweeper.run.runner import execute_run
 from sweeper.store.journal import Journal, read_journal
 from sweeper.store.runfile import FINISH_EVENT
 

@@ -18,11 +18,11 @@ from click.testing import CliRunner
 from live_rig import DEMO_PLAN, recorded_run
 
 from sweeper.cli import main
-from sweeper.judge import VERDICT_LABELS
+from sweeper.verdict import VERDICT_LABELS
 from sweeper.live import LiveError, find_source, is_loopback, make_server, read_snapshot
 from sweeper.measure.point import Verdict
 from sweeper.plan import load_plan
-from sweeper.runner import execute_run
+from sweeper.run.runner import execute_run
 from sweeper.store.journal import Journal
 
 

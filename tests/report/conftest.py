@@ -2,7 +2,7 @@
 
 H(f) = 1 / (1 + j 2 pi f R C), corner fc = 1 / (2 pi R C) (circuit handbook formula). The
 frames carry every `Point` field; limits come from the worst-case spread of R and C plus an
-allowance, and the verdicts from the project's own judge (`sweeper.judge.judge_point`), so
+allowance, and the verdicts from the project's own judge (`sweeper.verdict.judge_point`), so
 nothing here hard-codes a verdict. Board, serials, stations and instruments are invented.
 """
 
@@ -16,7 +16,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from sweeper.judge import build_limits, judge_point, run_verdict
+from sweeper.verdict import build_limits, judge_point, run_verdict
 from sweeper.measure.point import POINT_FIELDS, Flag, Point, Verdict
 
 R_OHM = 1.6e3
@@ -35,7 +35,7 @@ def rc_response(frequency_hz: np.ndarray, rc_s: float = R_OHM * C_F) -> tuple[np
 
 
 def rc_limits(frequency_hz: np.ndarray):
-    """Worst-case band over the RC spread, widened by 0.1 dB / 1 degree (sweeper.judge)."""
+    """Worst-case band over the RC spread, widened by 0.1 dB / 1 degree (sweeper.verdict)."""
     model_g, model_p = rc_response(frequency_hz)
     corners = [rc_response(frequency_hz, R_OHM * C_F * s) for s in RC_SPREAD]
     g = np.stack([c[0] for c in corners] + [model_g])

@@ -166,7 +166,7 @@ def test_summary_json(failing_run, tmp_path) -> None:
 
 def test_summary_of_unfinished_run_takes_the_worst_point(failing_run) -> None:
     # An unfinished run file states verdict 0 and finished False (sweeper.store.runfile layout);
-    # its verdict then comes from the points (sweeper.judge.run_verdict).
+    # its verdict then comes from the points (sweeper.verdict.run_verdict).
     frame, metadata = failing_run
     unfinished = {k: v for k, v in metadata.items() if k not in ("verdict", "status")}
     unfinished.update(finished=False, verdict=0, verdict_name="NOT_JUDGED")

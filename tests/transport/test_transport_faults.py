@@ -2,7 +2,7 @@
 
 A dropped connection (TCP reset), a stall, a block cut short and a trickle with long gaps are
 injected on the scope's waveform transfer after four points, and the generator's connection
-is dropped in a further case. Under the plan's fault policies (sweeper.supervise) a run either
+is dropped in a further case. Under the plan's fault policies (sweeper.run.supervise) a run either
 recovers (every point measured or flagged skipped, the faulted one flagged) or stops; under an
 "abort" policy it must stop with status error, exit code 3, the points measured before the
 fault kept in the journal and the run file. Either way the served generator's output ends off.
@@ -21,7 +21,7 @@ from transport_rig import loopback_plan, phase_difference_deg, rc_plan, rc_refer
 
 from sweeper.instruments.bench import sim_config
 from sweeper.measure.point import Flag
-from sweeper.runner import RunOutcome, execute_run
+from sweeper.run.runner import RunOutcome, execute_run
 from sweeper.sim.serve import NetFaultPlan, serve_bench
 from sweeper.store.journal import read_journal
 from sweeper.store.runfile import read_run

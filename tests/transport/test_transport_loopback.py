@@ -20,7 +20,7 @@ from transport_rig import loopback_plan, phase_difference_deg, rc_plan, rc_refer
 from sweeper.instruments.bench import open_bench, sim_config
 from sweeper.instruments.driverfile import find_driver, load_driver, repository_drivers_dir
 from sweeper.instruments.link import Link
-from sweeper.runner import execute_run
+from sweeper.run.runner import execute_run
 from sweeper.sim import SimConfig
 from sweeper.sim.serve import serve_bench
 

@@ -9,7 +9,7 @@ import numpy as np
 import pytest
 from transport_rig import C_F, CP_F, R_OHM, RP_OHM, phase_difference_deg, rc_plan, rc_reference
 
-from sweeper.checking import check_plan
+from sweeper.run.check import check_plan
 from sweeper.instruments.bench import sim_config
 from sweeper.measure.scope_measure import resolution_u_gain_db, type_a_gain_phase
 from sweeper.sim import GENERATOR_RESOURCE, SCOPE_A_RESOURCE, open_sim_resource_manager

@@ -2,7 +2,7 @@
 
 The drift check compares against scipy.signal.freqs (outside reference): sweep 2 of a
 campaign has its simulated capacitor 2 % high (the documented simulated-board hook of
-`sweeper.campaign.run_campaign`), so its gain and phase changes against sweep 1 must be the
+`sweeper.campaigns.campaign.run_campaign`), so its gain and phase changes against sweep 1 must be the
 difference of the two loaded RC low-pass responses. Board and serials are invented.
 """
 
@@ -21,7 +21,7 @@ import pytest
 from click.testing import CliRunner
 from scipy import signal as scipy_signal
 
-from sweeper.campaign import (
+from sweeper.campaigns.campaign import (
     Schedule,
     SkippingClock,
     WallClock,
@@ -30,7 +30,7 @@ from sweeper.campaign import (
     load_campaign,
     run_campaign,
 )
-from sweeper.campaign_drift import largest_changes
+from sweeper.campaigns.drift import largest_changes
 from sweeper.cli import main
 from sweeper.plan import load_plan
 from sweeper.store.catalog import Catalog, default_catalog_path
@@ -77,7 +77,7 @@ def test_drift_matches_scipy_freqs_difference(drifted) -> None:
     g0, p0 = loaded_rc(C_F, f)
     g1, p1 = loaded_rc(DRIFTED_C_F, f)
     # Each sweep is held to the project's accuracy tolerance on the simulated bench, 0.01 dB and
-    # 0.1 degree against the handbook response (main-job issue; checked in tests/engine). A change
+    # 0.1 degree against the handbook response (main-job issue; checked in tests/measure/test_engine_sweeps.py). A change
     # is the difference of two sweeps, so it is within twice that.
     assert np.all(np.abs(table["gain_change_db"] - (g1 - g0)) <= GAIN_TOL_DB)
     assert np.all(np.abs(table["phase_change_deg"] - (p1 - p0)) <= PHASE_TOL_DEG)

@@ -1,4 +1,4 @@
-"""Limits and decision rules (sweeper.judge).
+"""Limits and decision rules (sweeper.verdict).
 
 Outside references: ILAC-G8:09/2019 (guidelines on decision rules and statements of
 conformity) and ISO 14253-1:2017 (decision rules for verifying conformity): simple acceptance
@@ -9,7 +9,7 @@ below are worked by hand from those definitions.
 import numpy as np
 import pytest
 
-from sweeper.judge import build_limits, decide, judge_point, phase_margin, run_verdict, wrap_deg
+from sweeper.verdict import build_limits, decide, judge_point, phase_margin, run_verdict, wrap_deg
 from sweeper.measure.point import Verdict
 
 

@@ -17,8 +17,8 @@ import os
 import sys
 
 import sweeper.cli  # noqa: F401 - loads every command module
-import sweeper.resume  # noqa: F401 - and what the commands import when they run
-import sweeper.runner  # noqa: F401
+import sweeper.run.resume  # noqa: F401 - and what the commands import when they run
+import sweeper.run.runner  # noqa: F401
 import sweeper.sim  # noqa: F401
 from sweeper.cli import main
 

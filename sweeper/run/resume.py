@@ -32,12 +32,12 @@ from typing import Any
 import numpy as np
 
 from sweeper.instruments.bench import open_bench, safe_output_off
-from sweeper.judge import Limits
+from sweeper.verdict import Limits
 from sweeper.measure.engine import SweepStopped
 from sweeper.measure.point import Point, Verdict
 from sweeper.plan import PlanError, load_plan_text
-from sweeper.recovery import engine_state_from_points, reapply
-from sweeper.runner import (
+from sweeper.run.recovery import engine_state_from_points, reapply
+from sweeper.run.runner import (
     EXIT_BAD_INPUT,
     EXIT_RUN_ERROR,
     RunOutcome,
@@ -49,11 +49,11 @@ from sweeper.runner import (
     note_bench_end,
     plan_frequencies,
 )
-from sweeper.prediction import nominal_circuit
+from sweeper.verdict.prediction import nominal_circuit
 from sweeper.store.journal import Journal, JournalContents, JournalError
 from sweeper.store.runfile import FINISH_EVENT, RESUMED_EVENT, RunWriter, ensure_runfile
-from sweeper.supervise import RunAborted, Supervisor, WriteFailed
-from sweeper.transcript import Transcript, transcript_path
+from sweeper.run.supervise import RunAborted, Supervisor, WriteFailed
+from sweeper.run.transcript import Transcript, transcript_path
 
 LIMIT_NAMES = ("model_gain_db", "model_phase_deg", "gain_lo_db", "gain_hi_db", "phase_lo_deg", "phase_hi_deg")
 

@@ -7,11 +7,11 @@ import shutil
 from pathlib import Path
 
 import pytest
-from unattended_rig import load, plan_text
+from run_rig import load, plan_text
 
 from sweeper.plan import PlanError
-from sweeper.runner import execute_run
-from sweeper.supervise import estimate_run_bytes, space_problem
+from sweeper.run.runner import execute_run
+from sweeper.run.supervise import estimate_run_bytes, space_problem
 
 
 def test_fault_policy_defaults_and_partial_override(tmp_path: Path) -> None:

@@ -5,7 +5,7 @@ the code and Enter). For each serial it checks the catalog beside the runs: a se
 tested (in an earlier shift or this one) is only tested again after an explicit "y" to the
 retest question, and that run is recorded as a retest (run metadata ``retest``: true; a
 first test carries ``retest``: false, so the catalog never has to guess). It then runs the
-plan's sweep with the board's serial (`sweeper.board.plan_for_board`: the run file keeps the
+plan's sweep with the board's serial (`sweeper.campaigns.board.plan_for_board`: the run file keeps the
 plan file's text and hash; the catalog's serial column is the board's), files the run, and
 reports the result and the tally.
 
@@ -24,7 +24,7 @@ boards passing on their first test / boards tested for the first time (NaN when 
 Demo and test hook: `sim_board(serial, attempt)` gives the simulated board's true part values
 for this serial's `attempt`-th test in the shift (0 = its first; None keeps the plan's). It
 exists so one shift on the simulated bench can hold a failing board and its rework; it is
-refused on a visa bench and recorded in each run it changes (see `sweeper.board`).
+refused on a visa bench and recorded in each run it changes (see `sweeper.campaigns.board`).
 """
 
 from __future__ import annotations
@@ -40,9 +40,9 @@ from datetime import UTC, datetime
 from pathlib import Path
 from typing import TYPE_CHECKING, TextIO
 
-from sweeper.board import override_metadata, plan_for_board
+from sweeper.campaigns.board import override_metadata, plan_for_board
 from sweeper.measure.point import Point, Verdict
-from sweeper.runner import RunOutcome, execute_run
+from sweeper.run.runner import RunOutcome, execute_run
 from sweeper.store.catalog import Catalog, CatalogError, RunRecord, default_catalog_path
 
 if TYPE_CHECKING:

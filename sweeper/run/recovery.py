@@ -1,8 +1,8 @@
 """Bringing a bench back after a fault, or after a restart: clear or reopen sessions, re-apply
 the configuration a sweep relies on, and rebuild the engine's carried state from stored points.
 
-Used by the supervised sweep (sweeper.supervise) between attempts at a point, and by
-`sweeper resume` (sweeper.resume) before it continues an interrupted run.
+Used by the supervised sweep (sweeper.run.supervise) between attempts at a point, and by
+`sweeper resume` (sweeper.run.resume) before it continues an interrupted run.
 """
 
 from __future__ import annotations

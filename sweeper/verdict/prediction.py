@@ -11,7 +11,7 @@ from typing import TYPE_CHECKING
 import numpy as np
 
 from sweeper.circuits import Circuit, Loading, build_circuit, monte_carlo_band, worst_case_band
-from sweeper.judge import Limits, build_limits, wrap_deg
+from sweeper.verdict.limits import Limits, build_limits, wrap_deg
 
 if TYPE_CHECKING:
     from sweeper.plan import Plan

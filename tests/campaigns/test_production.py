@@ -2,7 +2,7 @@
 
 The demo plan (configs/rc-antialias.yaml, an invented data-logger board) runs on the simulated
 bench. One board is made to fail through the documented simulated-board hook of
-`sweeper.production.run_shift` (a 120 nF part where 100 nF +-5 % is specified), and passes
+`sweeper.campaigns.production.run_shift` (a 120 nF part where 100 nF +-5 % is specified), and passes
 after its "rework" (the hook gives the plan's parts on its second test). Serials are invented.
 """
 
@@ -19,10 +19,10 @@ import pytest
 from click.testing import CliRunner
 from scipy import signal
 
-from sweeper.board import SIM_OVERRIDE_KEY
+from sweeper.campaigns.board import SIM_OVERRIDE_KEY
 from sweeper.cli import main
 from sweeper.plan import load_plan
-from sweeper.production import (
+from sweeper.campaigns.production import (
     MAX_SERIAL_CHARS,
     read_shift_summary,
     run_shift,

@@ -37,10 +37,10 @@ from typing import TYPE_CHECKING, Protocol
 
 import pandas as pd
 
-from sweeper.board import override_metadata, plan_for_board
-from sweeper.campaign_drift import Sweep, drift_table
+from sweeper.campaigns.board import override_metadata, plan_for_board
+from sweeper.campaigns.drift import Sweep, drift_table
 from sweeper.measure.point import Point, Verdict
-from sweeper.runner import (
+from sweeper.run.runner import (
     EXIT_FAIL,
     EXIT_INTERRUPTED,
     EXIT_PASS,
@@ -208,7 +208,7 @@ def run_campaign(
     runs, all with one campaign id. Never raises for instrument faults (they end that run).
 
     on_sweep_start(number, due_s, started_s) and on_sweep_end(sweep) report progress.
-    sim_board(number) is the demo/test hook of `sweeper.board`: the simulated board's true
+    sim_board(number) is the demo/test hook of `sweeper.campaigns.board`: the simulated board's true
     part values for sweep `number` (1-based; None keeps the plan's), recorded in the run.
     A KeyboardInterrupt ends the campaign as "interrupted" and the result is still returned.
     """
@@ -323,7 +323,7 @@ def result_sweeps(result: CampaignResult) -> list[Sweep]:
 
 
 def campaign_drift(runs_dir: str | Path, campaign_id: str) -> tuple[pd.DataFrame, list[Sweep]]:
-    """The drift table of a filed campaign (see `sweeper.campaign_drift.drift_table`) and its sweeps."""
+    """The drift table of a filed campaign (see `sweeper.campaigns.drift.drift_table`) and its sweeps."""
     sweeps = load_campaign(runs_dir, campaign_id)
     return drift_table(sweeps), sweeps
 

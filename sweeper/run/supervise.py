@@ -39,10 +39,10 @@ from sweeper.instruments.errors import (
     ScpiError,
 )
 from sweeper.instruments.roles import Capture
-from sweeper.judge import Limits
+from sweeper.verdict import Limits
 from sweeper.measure.engine import EngineSettings, EngineState, Instruments, sweep
 from sweeper.measure.point import Flag, Point
-from sweeper.recovery import clear_session, reapply, reopen_session, role_adapters
+from sweeper.run.recovery import clear_session, reapply, reopen_session, role_adapters
 
 #: Attempts at one point, all fault kinds together, before the run stops whatever the policy
 #: says (a guard against faults that keep changing kind).

@@ -9,10 +9,10 @@ from pathlib import Path
 
 import pytest
 from click.testing import CliRunner
-from unattended_rig import load, plan_text, without_times
+from run_rig import load, plan_text, without_times
 
 from sweeper.cli import main
-from sweeper.runner import execute_run
+from sweeper.run.runner import execute_run
 from sweeper.store.catalog import Catalog, default_catalog_path
 from sweeper.store.journal import Journal, read_journal
 from sweeper.store.runfile import frames_identical, read_run

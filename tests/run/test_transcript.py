@@ -7,12 +7,12 @@ import json
 from datetime import datetime
 from pathlib import Path
 
-from unattended_rig import load, plan_text
+from run_rig import load, plan_text
 
 from sweeper.instruments.link import ANSWER_PREVIEW
-from sweeper.runner import execute_run
+from sweeper.run.runner import execute_run
 from sweeper.store.runfile import read_run
-from sweeper.transcript import TEXT_LIMIT, Transcript, read_transcript
+from sweeper.run.transcript import TEXT_LIMIT, Transcript, read_transcript
 
 
 def test_transcript_records_every_transaction_beside_the_run(tmp_path: Path) -> None:

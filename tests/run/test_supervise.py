@@ -19,11 +19,11 @@ import sys
 from pathlib import Path
 
 import pytest
-from unattended_rig import SCOPE_B, journal_points_match_runfile, load, plan_text, skipped, without_times
+from run_rig import SCOPE_B, journal_points_match_runfile, load, plan_text, skipped, without_times
 
 from sweeper.measure.point import Flag, Verdict
-from sweeper.resume import resume_run
-from sweeper.runner import EXIT_RUN_ERROR, execute_run
+from sweeper.run.resume import resume_run
+from sweeper.run.runner import EXIT_RUN_ERROR, execute_run
 from sweeper.store.journal import read_journal
 from sweeper.store.runfile import frames_identical, points_frame, read_run
 

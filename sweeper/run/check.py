@@ -15,7 +15,7 @@ import numpy as np
 from sweeper.circuits import figures
 from sweeper.instruments.roles import ScopeLimits
 from sweeper.measure.schedule import capture_window, settle_time_s, time_constants_for_target
-from sweeper.prediction import nominal_circuit, predict_limits
+from sweeper.verdict.prediction import nominal_circuit, predict_limits
 
 if TYPE_CHECKING:
     from sweeper.plan import Plan
@@ -78,7 +78,7 @@ def estimate_duration_s(
 def check_plan(plan: "Plan", rows: int = 7) -> CheckReport:
     """Check a loaded plan against its drivers' limits and predict its outcome."""
     from sweeper.instruments.limits import bench_limits
-    from sweeper.runner import plan_frequencies
+    from sweeper.run.runner import plan_frequencies
 
     report = CheckReport()
     freqs = plan_frequencies(plan)

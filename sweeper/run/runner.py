@@ -19,16 +19,16 @@ from typing import TYPE_CHECKING
 import numpy as np
 
 from sweeper.instruments.bench import open_bench, safe_output_off
-from sweeper.judge import Limits, run_verdict
+from sweeper.verdict import Limits, run_verdict
 from sweeper.measure.engine import EngineSettings, EngineState, SweepStopped, prepare_source
 from sweeper.measure.point import Flag, Point, Verdict
 from sweeper.measure.schedule import frequency_grid, time_constants_for_target
-from sweeper.prediction import nominal_circuit, predict_limits
+from sweeper.verdict.prediction import nominal_circuit, predict_limits
 from sweeper.store.catalog import Catalog, default_catalog_path
 from sweeper.store.journal import Journal
 from sweeper.store.runfile import FINISH_EVENT, RunWriter, file_sha256, run_header
-from sweeper.supervise import RunAborted, Supervisor, WriteFailed, estimate_run_bytes, space_problem
-from sweeper.transcript import Transcript, transcript_path
+from sweeper.run.supervise import RunAborted, Supervisor, WriteFailed, estimate_run_bytes, space_problem
+from sweeper.run.transcript import Transcript, transcript_path
 
 if TYPE_CHECKING:
     from sweeper.plan import Plan
@@ -55,7 +55,7 @@ class RunOutcome:
     transactions: int = 0
     catalog_error: str | None = None
     transcript_path: Path | None = None
-    faults: dict = field(default_factory=dict)  # fault kind -> faults met (sweeper.supervise)
+    faults: dict = field(default_factory=dict)  # fault kind -> faults met (sweeper.run.supervise)
     output_off: bool | None = None  # the source took 'output off' as the bench closed
     sim_output_on: bool | None = None  # a simulated bench's generator output after the run
 
@@ -161,7 +161,7 @@ def execute_run(
     """Run the plan once on its bench and file the result; never raises for instrument faults.
 
     The output folder and its free space are checked before any instrument is touched.
-    Instrument faults are handled as the plan's `faults` section says (sweeper.supervise);
+    Instrument faults are handled as the plan's `faults` section says (sweeper.run.supervise);
     every transaction goes to the run's transcript, beside the run file.
     """
     out_dir = Path(out_dir)

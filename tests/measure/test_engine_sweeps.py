@@ -17,7 +17,7 @@ from scipy import signal
 
 from sweeper.measure.point import Flag, Verdict
 from sweeper.plan import load_plan_text
-from sweeper.runner import execute_run
+from sweeper.run.runner import execute_run
 from sweeper.store.runfile import read_run
 
 RP, CP = 1e6, 15e-12  # probe on the output node, as in every plan below

@@ -28,9 +28,9 @@ from pathlib import Path
 
 import numpy as np
 import pytest
-from unattended_rig import METER, SCOPE_A, SCOPE_B, journal_points_match_runfile, load, plan_text, without_times
+from run_rig import METER, SCOPE_A, SCOPE_B, journal_points_match_runfile, load, plan_text, without_times
 
-from sweeper.runner import execute_run
+from sweeper.run.runner import execute_run
 from sweeper.store.journal import JournalError, read_journal
 from sweeper.store.runfile import frames_identical, read_run
 

@@ -6,7 +6,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from sweeper.campaign_drift import DRIFT_COLUMNS, Sweep, drift_table, largest_changes
+from sweeper.campaigns.drift import DRIFT_COLUMNS, Sweep, drift_table, largest_changes
 
 FREQS_HZ = np.array([100.0, 1e3, 10e3, 100e3])
 
