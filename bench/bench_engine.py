@@ -14,7 +14,6 @@ Run: .venv/bin/python bench/bench_engine.py
 
 from __future__ import annotations
 
-import math
 import statistics
 import sys
 import tempfile
@@ -23,12 +22,10 @@ from pathlib import Path
 
 import numpy as np
 
-from sweeper.instruments.bench import open_bench
-from sweeper.measure.engine import Instruments, prepare_source, sweep
 from sweeper.measure.schedule import samples_for_uncertainty, settle_time_s, time_constants_for_target
 from sweeper.plan import load_plan_text
-from sweeper.verdict.prediction import nominal_circuit
-from sweeper.run.runner import engine_settings, execute_run, plan_frequencies, predict_limits
+from sweeper.run.runner import execute_run, sweep_only
+from sweeper.run.spec import run_spec
 
 REPO = Path(__file__).resolve().parents[1]
 
@@ -43,38 +40,21 @@ def plan_for(scope: str, points: int = 200, settle_cycles: float = 2):
 
 def engine_only(plan) -> dict[str, float]:
     """One sweep through the engine with no storage; wall time split into I/O and the rest."""
-    freqs = plan_frequencies(plan)
-    limits = predict_limits(plan, freqs)
-    settings = engine_settings(plan)
-    model = nominal_circuit(plan)
-    counts: list[int] = []
-    points = []
-    with open_bench(plan) as bench:
-        prepare_source(bench.source, settings)
-        io0 = bench.stats.seconds
-        t0 = time.perf_counter()
-
-        def sink(point, capture):
-            counts.append(bench.stats.writes + bench.stats.queries)
-            points.append(point)
-
-        sweep(freqs, settings, Instruments(bench.source, bench.clock, bench.scope, bench.meter), limits,
-              lambda f: complex(model.response(np.array([f]))[0]), sink)
-        wall = time.perf_counter() - t0
-        io = bench.stats.seconds - io0
-        sim_seconds = bench.clock.now_s()
-    per_point = np.diff(counts)
+    spec = run_spec(plan)
+    result = sweep_only(spec)
+    n = len(result.points)
+    per_point = np.diff(result.transactions_after)
     return {
-        "points": len(points),
-        "wall_s": wall,
-        "io_s": io,
-        "overhead_ms_per_point": 1e3 * (wall - io) / len(points),
+        "points": n,
+        "wall_s": result.wall_s,
+        "io_s": result.io_s,
+        "overhead_ms_per_point": 1e3 * (result.wall_s - result.io_s) / n,
         "transactions_median": float(np.median(per_point)),
         "transactions_mean": float(np.mean(per_point)),
-        "sim_seconds": sim_seconds,
-        "points_list": points,
-        "settings": settings,
-        "tau": model.slowest_time_constant_s(),
+        "sim_seconds": result.bench_s,
+        "points_list": result.points,
+        "settings": spec.settings,
+        "tau": spec.model.slowest_time_constant_s(),
     }
 
 

@@ -17,36 +17,25 @@ from __future__ import annotations
 import math
 import sys
 import time
-from datetime import datetime, timezone
 
 import numpy as np
 
 from sweeper.analysis import extract
-from sweeper.instruments.bench import open_bench
-from sweeper.measure.engine import Instruments, prepare_source, sweep
 from sweeper.plan import load_plan_text
-from sweeper.verdict.prediction import nominal_circuit
-from sweeper.run.runner import engine_settings, plan_frequencies, predict_limits
+from sweeper.run.runner import sweep_only
+from sweeper.run.spec import run_spec
+from sweeper.sim.demo import demo_plan_text
 from sweeper.store.runfile import points_frame
 
-PLAN = """
-plan: 1
-name: extraction-bench
-dut: {{board: ANX-3 bench fixture, serial: ANX3-B{seed:04d}}}
-bench:
-  kind: simulated
-  source: {{resource: "TCPIP0::sim-gen::5025::SOCKET", driver: sim-generator.yaml}}
-  scope: {{resource: "TCPIP0::sim-scope-{dialect}::5025::SOCKET", driver: sim-scope-{dialect}.yaml}}
-  simulation: {{seed: {seed}, range_noise: 0.2 %, components: {true_parts}}}
-stimulus: {{amplitude: 2 Vpp, load: high-z, max_amplitude: 10 Vpp}}
-sweep: {{start: {start}, stop: {stop}, points_per_decade: 5}}
-acquisition: {{min_cycles: 8, min_samples: 2000, settle_cycles: 2, settle_time_constants: 6, max_averages: 1}}
-model:
-  circuit: {circuit}
-  components: {components}
-  loading: {{source_resistance: 50 Ohm, probe_resistance: 1 MOhm, probe_capacitance: 15 pF}}
-limits: {{band: worst-case, allowance: {{gain: 0.05 dB, phase: 0.5 deg}}}}
-"""
+def plan_text(seed: int, dialect: str, circuit: str, start: str, stop: str, true_parts: str, components: str) -> str:
+    """The demo plan for one seeded sweep of a board."""
+    return demo_plan_text(
+        name="extraction-bench", board="ANX-3 bench fixture", serial=f"ANX3-B{seed:04d}", instrument=f"scope-{dialect}",
+        simulation=f"{{seed: {seed}, range_noise: 0.2 %, components: {true_parts}}}",
+        sweep=f"{{start: {start}, stop: {stop}, points_per_decade: 5}}",
+        acquisition="{min_cycles: 8, min_samples: 2000, settle_cycles: 2, settle_time_constants: 6, max_averages: 1}",
+        circuit=circuit, components=components, limits="{band: worst-case, allowance: {gain: 0.05 dB, phase: 0.5 deg}}")
+
 
 BOARDS = {
     "RC low-pass, C 120 nF": dict(
@@ -64,20 +53,7 @@ BOARDS = {
 def measure(text: str):
     """One sweep on the simulated bench (as the runner wires it, without the store)."""
     plan = load_plan_text(text)
-    freqs = plan_frequencies(plan)
-    limits = predict_limits(plan, freqs)
-    settings = engine_settings(plan)
-    model = nominal_circuit(plan)
-    points = []
-    with open_bench(plan) as bench:
-        prepare_source(bench.source, settings)
-        try:
-            sweep(freqs, settings, Instruments(bench.source, bench.clock, bench.scope, bench.meter), limits,
-                  lambda f: complex(model.response(np.array([f]))[0]), lambda p, c: points.append(p),
-                  start_utc=datetime.now(timezone.utc))
-        finally:
-            bench.source.set_output(False)
-    return points_frame(points), {"run_id": "bench", "plan_yaml": plan.source_text}
+    return points_frame(sweep_only(run_spec(plan)).points), {"run_id": "bench", "plan_yaml": plan.source_text}
 
 
 def main(runs: int) -> None:
@@ -88,7 +64,7 @@ def main(runs: int) -> None:
         z: list[float] = []
         chi2, named, seconds = [], 0, 0.0
         for seed in range(1, runs + 1):
-            frame, metadata = measure(PLAN.format(seed=seed, **fields))
+            frame, metadata = measure(plan_text(seed=seed, **fields))
             t0 = time.perf_counter()
             ex = extract(frame, metadata)
             seconds += time.perf_counter() - t0

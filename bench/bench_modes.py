@@ -1,6 +1,6 @@
 """Benchmark: the three measurement modes on the same RC sweep.
 
-Run:  /tmp/venv/bin/python bench/bench_modes.py [--socket] [--noise 0.5e-3] [--seed 7]
+Run:  .venv/bin/python bench/bench_modes.py [--socket] [--noise 0.5e-3] [--seed 7]
 
 One RC low-pass (1.6 kOhm, 100 nF, probed by 1 MOhm || 15 pF; corner near 1 kHz), swept 10 Hz
 to 100 kHz at 5 points per decade with a 2 Vpp stimulus, measured three ways:
@@ -25,53 +25,19 @@ import argparse
 import math
 import sys
 import tempfile
-import time
 from pathlib import Path
 
 import numpy as np
 from scipy import signal
 
-from sweeper.instruments.bench import open_bench, sim_config
-from sweeper.measure.engine import Instruments, prepare_source, sweep
 from sweeper.plan import load_plan_text
-from sweeper.verdict.prediction import nominal_circuit, predict_limits
-from sweeper.run.runner import engine_settings, plan_frequencies
+from sweeper.run.runner import sweep_only
+from sweeper.run.spec import run_spec, sim_config
+from sweeper.sim.demo import demo_plan_text
 
 R_OHM, C_F, RP_OHM, CP_F = 1.6e3, 100e-9, 1e6, 15e-12
 
-PLAN = """
-plan: 1
-name: bench-modes
-dut: {{board: BM-1 benchmark fixture, serial: BM1-0001}}
-bench:
-  kind: {kind}
-  visa_library: "@py"
-  mode: {mode}
-  source: {{resource: "{source}", driver: sim-generator.yaml}}
-  {role}: {{resource: "{instrument}", driver: {driver}}}
-  simulation: {{seed: {seed}, noise: {noise} V}}
-stimulus: {{amplitude: 2 Vpp, load: high-z, max_amplitude: 5 Vpp}}
-sweep: {{start: 10 Hz, stop: 100 kHz, points_per_decade: 5}}
-acquisition:
-  min_cycles: 8
-  min_samples: 4000
-  settle_cycles: 2
-  settle_time_constants: 6
-  averages: 1
-  max_averages: 8
-  target_uncertainty: {{gain: 0.02 dB, phase: 0.2 deg}}
-model:
-  circuit: rc-lowpass
-  components: {{R: {{value: 1.6 kOhm, tolerance: 1 %}}, C: {{value: 100 nF, tolerance: 5 %}}}}
-  loading: {{source_resistance: 50 Ohm, probe_resistance: 1 MOhm, probe_capacitance: 15 pF}}
-limits: {{band: worst-case, allowance: {{gain: 0.1 dB, phase: 1 deg}}, decision_rule: guarded}}
-"""
-
-MODES = {
-    "waveform": ("scope", "sim-scope-a.yaml", "TCPIP0::sim-scope-a::5025::SOCKET", "scope-a"),
-    "scope-measure": ("scope", "sim-scope-a.yaml", "TCPIP0::sim-scope-a::5025::SOCKET", "scope-a"),
-    "meter": ("meter", "sim-meter.yaml", "TCPIP0::sim-meter::5025::SOCKET", "meter"),
-}
+MODES = {"waveform": "scope-a", "scope-measure": "scope-a", "meter": "meter"}  # mode -> instrument
 
 
 def reference(frequency_hz: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -83,36 +49,28 @@ def reference(frequency_hz: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
 
 
 def make_plan(mode: str, folder: Path, seed: int, noise_v: float, resources: dict[str, str] | None):
-    role, driver, sim_resource, served_name = MODES[mode]
-    fields = dict(kind="simulated", mode=mode, source="TCPIP0::sim-gen::5025::SOCKET", role=role,
-                  instrument=sim_resource, driver=driver, seed=seed, noise=noise_v)
-    if resources is not None:
-        fields.update(kind="visa", source=resources["generator"], instrument=resources[served_name])
-    return load_plan_text(PLAN.format(**fields), str(folder / f"{mode}.yaml"))
+    """The demo RC plan in one mode; on the served bench's sockets when resources are given."""
+    instrument = MODES[mode]
+    served = {} if resources is None else dict(
+        kind="visa", visa_library="@py", source_resource=resources["generator"],
+        instrument_resource=resources[instrument])
+    text = demo_plan_text(
+        name="bench-modes", board="BM-1 benchmark fixture", serial="BM1-0001", mode=mode, instrument=instrument,
+        simulation=f"{{seed: {seed}, noise: {noise_v} V}}",
+        stimulus="{amplitude: 2 Vpp, load: high-z, max_amplitude: 5 Vpp}",
+        sweep="{start: 10 Hz, stop: 100 kHz, points_per_decade: 5}",
+        acquisition="{min_cycles: 8, min_samples: 4000, settle_cycles: 2, settle_time_constants: 6, averages: 1, "
+                    "max_averages: 8, target_uncertainty: {gain: 0.02 dB, phase: 0.2 deg}}",
+        limits="{band: worst-case, allowance: {gain: 0.1 dB, phase: 1 deg}, decision_rule: guarded}", **served)
+    return load_plan_text(text, str(folder / f"{mode}.yaml"))
 
 
 def measure(plan, sim_clock=None) -> dict[str, float]:
     """Run the plan's sweep through the engine; figures per point. sim_clock: the served bench's
     simulated clock (a visa bench runs on the real clock, which says nothing of the instruments)."""
-    freqs = plan_frequencies(plan)
-    limits = predict_limits(plan, freqs)
-    settings = engine_settings(plan)
-    model = nominal_circuit(plan)
-    points = []
-    with open_bench(plan) as bench:
-        prepare_source(bench.source, settings)
-        stats = bench.stats
-        clock = sim_clock if sim_clock is not None else bench.clock
-        before = (stats.writes + stats.queries, stats.bytes_read, clock.now_s())
-        wall = time.perf_counter()
-        sweep(freqs, settings, Instruments(bench.source, bench.clock, bench.scope, bench.meter), limits,
-              lambda f: complex(model.response(np.array([f]))[0]), lambda p, c: points.append(p))
-        wall = time.perf_counter() - wall
-        n = len(points)
-        transactions = (stats.writes + stats.queries - before[0]) / n
-        bytes_per_point = (stats.bytes_read - before[1]) / n
-        bench_s = (clock.now_s() - before[2]) / n
-        bench.source.set_output(False)
+    result = sweep_only(run_spec(plan), clock=sim_clock)
+    points = result.points
+    n = len(points)
     f = np.array([p.frequency_hz for p in points])
     gain_ref, phase_ref = reference(f)
     gain_err = np.abs(np.array([p.gain_db for p in points]) - gain_ref)
@@ -120,7 +78,8 @@ def measure(plan, sim_clock=None) -> dict[str, float]:
     return dict(points=n, gain_err_db=float(gain_err.max()), phase_err_deg=float(phase_err.max()),
                 u_gain_db=float(np.median([p.u_gain_db for p in points])),
                 u_phase_deg=float(np.median([p.u_phase_deg for p in points])),
-                bytes=bytes_per_point, transactions=transactions, bench_s=bench_s, wall_s=wall / n)
+                bytes=result.bytes_read / n, transactions=result.transactions / n, bench_s=result.bench_s / n,
+                wall_s=result.wall_s / n)
 
 
 def main() -> int:

@@ -631,7 +631,7 @@ def extract(frame: Any, metadata: Mapping[str, Any], *, reference: str | None = 
     Raises ExtractionError when the run holds no readable plan or the model cannot be fitted.
     """
     from sweeper.plan import PlanError, load_plan_text
-    from sweeper.verdict.prediction import nominal_values, plan_loading, tolerances
+    from sweeper.verdict.prediction import model_loading, nominal_values, tolerances
 
     text = metadata.get("plan_yaml")
     if not isinstance(text, str) or not text.strip():
@@ -650,7 +650,7 @@ def extract(frame: Any, metadata: Mapping[str, Any], *, reference: str | None = 
     return fit_parts(
         columns["frequency_hz"], columns["gain_db"], columns["phase_deg"],
         columns.get("u_gain_db", np.full(n, np.nan)), columns.get("u_phase_deg", np.full(n, np.nan)),
-        plan.model.circuit, nominal_values(plan), tolerances(plan), plan_loading(plan),
+        plan.model.circuit, nominal_values(plan.model), tolerances(plan.model), model_loading(plan.model),
         flags=frame["flags"].to_numpy() if "flags" in frame else None, reference=reference,
     )
 

@@ -40,14 +40,8 @@ import pandas as pd
 from sweeper.campaigns.board import override_metadata, plan_for_board
 from sweeper.campaigns.drift import Sweep, drift_table
 from sweeper.measure.point import Point, Verdict
-from sweeper.run.runner import (
-    EXIT_FAIL,
-    EXIT_INTERRUPTED,
-    EXIT_PASS,
-    EXIT_RUN_ERROR,
-    RunOutcome,
-    execute_run,
-)
+from sweeper.run.outcome import EXIT_FAIL, EXIT_INTERRUPTED, EXIT_PASS, EXIT_RUN_ERROR, RunOutcome
+from sweeper.run.runner import execute_run
 from sweeper.store.catalog import Catalog, CatalogError, RunRecord, default_catalog_path
 from sweeper.store.runfile import read_run
 

@@ -42,7 +42,8 @@ from typing import TYPE_CHECKING, TextIO
 
 from sweeper.campaigns.board import override_metadata, plan_for_board
 from sweeper.measure.point import Point, Verdict
-from sweeper.run.runner import RunOutcome, execute_run
+from sweeper.run.outcome import RunOutcome
+from sweeper.run.runner import execute_run
 from sweeper.store.catalog import Catalog, CatalogError, RunRecord, default_catalog_path
 
 if TYPE_CHECKING:

@@ -141,12 +141,12 @@ def compare(runs: tuple[str, ...], runs_dir: str, golden: str | None, at: tuple[
     if out is None:
         return
     if out.suffix.lower() == ".html":
-        from sweeper.analysis.page import write_comparison_html
+        from sweeper.report.comparison import write_comparison_html
 
         write_comparison_html(loaded, out, golden_index=golden_index, at_hz=at_hz)
         console.print(f"comparison: {out}")
         return
-    from sweeper.analysis.plots import drift_figure, spread_figure
+    from sweeper.report.comparison_plots import drift_figure, spread_figure
     from sweeper.report.plot import difference_figure, overlay_figure, save_figure
 
     figures = {"overlay": overlay_figure(loaded, golden_index)}

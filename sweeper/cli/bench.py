@@ -78,7 +78,7 @@ def serve(plan_path: str, host: str, base_port: int, allow_remote: bool, instrum
     """
     from dataclasses import replace
 
-    from sweeper.instruments.bench import sim_config
+    from sweeper.run.spec import sim_config
     from sweeper.sim.serve import (
         DRIVERS,
         INSTRUMENTS,

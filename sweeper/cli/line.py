@@ -29,7 +29,7 @@ from sweeper.plan import format_quantity
 
 if TYPE_CHECKING:
     from sweeper.campaigns.production import BoardTest, ShiftSummary, Tally
-    from sweeper.run.runner import RunOutcome
+    from sweeper.run.outcome import RunOutcome
 
 # Our own 5-row block letters, drawn with '#' and widened when rendered.
 _GLYPHS: dict[str, tuple[str, ...]] = {

@@ -1,6 +1,6 @@
-"""Open the bench a plan describes: sessions, driver files, role adapters, identities.
+"""Open a bench (a BenchSpec: roles, resources, driver files): sessions, role adapters, identities.
 
-``with open_bench(plan) as bench:`` gives bench.source, bench.scope (waveform mode) or
+``with open_bench(spec) as bench:`` gives bench.source, bench.scope (waveform mode) or
 bench.meter (meter mode), bench.clock, bench.identities and bench.stats. Leaving the block,
 normally or by any exception, switches the source output off first and then closes every
 session.
@@ -9,7 +9,7 @@ session.
 from __future__ import annotations
 
 from collections.abc import Iterable
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import Any
 
 import pyvisa
@@ -19,7 +19,8 @@ from sweeper.instruments.driver_roles import DriverMeter, DriverScope, DriverSou
 from sweeper.instruments.driverfile import LoadedDriver
 from sweeper.instruments.errors import BenchError, IdentityMismatch, InstrumentError
 from sweeper.instruments.interpreter import DriverSession
-from sweeper.instruments.limits import SIM_DEFAULTS, bench_drivers, roles_for
+from sweeper.instruments.limits import bench_drivers
+from sweeper.instruments.spec import SIM_DEFAULTS, BenchSpec, RoleSpec, roles_for
 from sweeper.instruments.link import FaultHook, Link, Observer
 from sweeper.instruments.roles import Clock, Identity, TransactionStats
 from sweeper.instruments.transport import prepare_session
@@ -153,42 +154,15 @@ def open_role(
     return adapter, Identity(role, resource_name, idn, loaded.name, loaded.sha256), link
 
 
-def sim_circuit(plan: Any) -> Any:
-    """The true DUT of a simulated bench: the model's topology with its nominal values, overridden
-    by bench.simulation.components, under the plan's loading, referenced to the DUT input node
-    (the simulator adds its generator's own source resistance)."""
-    from sweeper.verdict.prediction import true_circuit
-
-    return true_circuit(plan, reference="input")
-
-
-def sim_config(plan: Any, faults: object | None = None) -> Any:
-    """The sweeper.sim SimConfig of a plan's simulated DUT: sim_circuit(plan) and bench.simulation
-    (also what `sweeper bench serve` serves)."""
-    from sweeper.sim import SimConfig
-
-    simulation = plan.bench.simulation
-    return SimConfig(
-        circuit=sim_circuit(plan),
-        noise_v=simulation.noise_v,
-        noise_range_frac=simulation.noise_range_frac,
-        distortion_frac=simulation.distortion_frac,
-        seed=simulation.seed,
-        realtime=simulation.realtime,
-        faults=faults,
-        transient=simulation.transient,
-    )
-
-
 def open_bench(
-    plan: Any,
+    spec: BenchSpec,
     *,
     clock: Clock | None = None,
     transcript: Observer | None = None,
     fault_hook: FaultHook | None = None,
     sim_faults: object | None = None,
 ) -> Bench:
-    """Open the plan's bench (a context manager: leaving it switches the output off and closes).
+    """Open a bench (a context manager: leaving it switches the output off and closes).
 
     clock: the clock of a visa bench (RealClock when None); a simulated bench runs on its own
         simulated clock, so giving one there is an error.
@@ -198,43 +172,41 @@ def open_bench(
     Raises BenchError (a driver file missing, invalid or of the wrong role; a visa bench
     without an instrument it needs) before any session opens, or InstrumentError.
     """
-    bench_spec = plan.bench
-    drivers, problems = bench_drivers(plan)  # before any session: a bad driver file touches nothing
+    drivers, problems = bench_drivers(spec)  # before any session: a bad driver file touches nothing
     if problems:
         raise BenchError("\n".join(f"{where}: {message}" for where, message in problems))
     stats = TransactionStats()
     observers = [transcript] if transcript is not None else []
     sim = None
-    if bench_spec.kind == "simulated" or (bench_spec.visa_library or "").strip() == "@sim":
+    if spec.simulated:
         if clock is not None:
             raise BenchError("a simulated bench runs on its own simulated clock: do not pass clock=")
+        if spec.sim is None:
+            raise BenchError("a simulated bench needs its simulation settings (BenchSpec.sim)")
         from sweeper.sim import open_sim_resource_manager
 
-        rm, sim = open_sim_resource_manager(sim_config(plan, sim_faults))
+        config = spec.sim if sim_faults is None else replace(spec.sim, faults=sim_faults)
+        rm, sim = open_sim_resource_manager(config)
         bench_clock: Clock = sim.clock
-    elif bench_spec.kind == "visa":
+    elif spec.kind == "visa":
         if sim_faults is not None:
             raise BenchError("sim_faults apply to a simulated bench only")
         try:
-            rm = pyvisa.ResourceManager(bench_spec.visa_library or "@py")
+            rm = pyvisa.ResourceManager(spec.visa_library or "@py")
         except Exception as exc:  # noqa: BLE001
-            raise BenchError(f"cannot load the VISA library {bench_spec.visa_library or '@py'!r}: {exc}") from exc
+            raise BenchError(f"cannot load the VISA library {spec.visa_library or '@py'!r}: {exc}") from exc
         bench_clock = clock if clock is not None else RealClock()
     else:
-        raise BenchError(f"bench.kind {bench_spec.kind!r} is not simulated or visa")
+        raise BenchError(f"bench.kind {spec.kind!r} is not simulated or visa")
 
     bench = Bench(None, None, None, bench_clock, [], stats, resource_manager=rm, sim=sim)
     try:
-        for role in roles_for(bench_spec.mode):
-            ref = getattr(bench_spec, role)
-            if ref is None:
-                resource_name, timeout_s = SIM_DEFAULTS[role][0], None
-            else:  # the plan's timeout when it gives one, else the driver file's
-                resource_name = ref.resource
-                timeout_s = ref.timeout_s if "timeout_s" in ref.model_fields_set else None
+        for role in roles_for(spec.mode):
+            ref = spec.role(role)
+            assert ref is not None  # bench_drivers refused a bench without it
             adapter, identity, link = open_role(
-                rm, role, resource_name, drivers[role],
-                timeout_s=timeout_s, stats=stats, observers=observers, fault_hook=fault_hook,
+                rm, role, ref.resource, drivers[role],
+                timeout_s=ref.timeout_s, stats=stats, observers=observers, fault_hook=fault_hook,
             )
             setattr(bench, role, adapter)
             bench.identities.append(identity)
@@ -246,6 +218,6 @@ def open_bench(
 
 
 __all__ = [
-    "SIM_DEFAULTS", "Bench", "open_bench", "open_role", "reopen_output_off", "safe_output_off", "sim_circuit",
-    "sim_config",
+    "SIM_DEFAULTS", "Bench", "BenchSpec", "RoleSpec", "open_bench", "open_role", "reopen_output_off",
+    "safe_output_off",
 ]

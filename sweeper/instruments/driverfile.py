@@ -16,12 +16,11 @@ import hashlib
 import math
 import os
 import re
-from collections.abc import Iterable, Sequence
+from collections.abc import Sequence
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Annotated, Any, Literal
 
-import yaml
 from pydantic import AfterValidator, BaseModel, ConfigDict, Field, PlainValidator, ValidationError, field_validator, model_validator
 
 from sweeper.instruments.template import TemplateError, parse_template, placeholders

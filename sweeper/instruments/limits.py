@@ -1,11 +1,10 @@
-"""What the plan's instruments can do, read from their driver files without opening a session.
+"""What a bench's instruments can do, read from their driver files without opening a session.
 
 Used by the role adapters (their .limits) and by `sweeper check` before anything is touched.
 """
 
 from __future__ import annotations
 
-from typing import Any
 
 from sweeper.instruments import scales
 from sweeper.instruments.driverfile import (
@@ -14,18 +13,11 @@ from sweeper.instruments.driverfile import (
     MeterSection,
     ScopeSection,
     SourceSection,
-    driver_search_path,
     find_driver,
     load_driver,
 )
 from sweeper.instruments.roles import MeterLimits, ScopeLimits, SourceLimits
-
-#: Resource and driver used on a simulated bench when the plan names none for a role.
-SIM_DEFAULTS = {
-    "source": ("TCPIP0::sim-gen::5025::SOCKET", "sim-generator.yaml"),
-    "scope": ("TCPIP0::sim-scope-a::5025::SOCKET", "sim-scope-a.yaml"),
-    "meter": ("TCPIP0::sim-meter::5025::SOCKET", "sim-meter.yaml"),
-}
+from sweeper.instruments.spec import BenchSpec, roles_for
 
 Limits = SourceLimits | ScopeLimits | MeterLimits
 
@@ -81,31 +73,22 @@ def driver_limits(loaded: LoadedDriver) -> Limits:
     return meter_limits(section)
 
 
-def roles_for(mode: str) -> tuple[str, str]:
-    """The roles a bench mode uses: ('source', 'meter') in meter mode, else ('source', 'scope')."""
-    return ("source", "meter") if mode == "meter" else ("source", "scope")
-
-
-def bench_drivers(plan: Any) -> tuple[dict[str, LoadedDriver], list[tuple[str, str]]]:
-    """Find and load the driver file of every role the plan's bench mode uses.
+def bench_drivers(spec: BenchSpec) -> tuple[dict[str, LoadedDriver], list[tuple[str, str]]]:
+    """Find and load the driver file of every role the bench's mode uses.
 
     Returns ({role: loaded driver}, [(plan field path, problem)]); nothing is raised for a
     missing or invalid driver, so a check can report every problem at once.
     """
-    bench = plan.bench
     found: dict[str, LoadedDriver] = {}
     problems: list[tuple[str, str]] = []
-    search = driver_search_path(getattr(plan, "path", None))
-    for role in roles_for(bench.mode):
-        ref = getattr(bench, role)
-        if ref is None:
-            if bench.kind != "simulated":
-                problems.append((f"bench.{role}", f"a {bench.mode}-mode visa bench needs a {role} (resource, driver)"))
-                continue
-            name = SIM_DEFAULTS[role][1]
-        else:
-            name = ref.driver
-        where = f"bench.{role}.driver" if ref is not None else f"bench.{role}"
+    search = list(spec.search_path)
+    for role in roles_for(spec.mode):
+        ref = spec.role(role)
+        if ref is None or not ref.driver:
+            problems.append((f"bench.{role}", f"a {spec.mode}-mode bench needs a {role} (resource, driver)"))
+            continue
+        name = ref.driver
+        where = f"{ref.field}.driver" if ref.field else f"bench.{role}"
         try:
             loaded = load_driver(find_driver(name, search))
         except FileNotFoundError as exc:
@@ -117,7 +100,7 @@ def bench_drivers(plan: Any) -> tuple[dict[str, LoadedDriver], list[tuple[str, s
         if loaded.driver.role != role:
             problems.append((where, f"{name!r} is a {loaded.driver.role} driver; expected a {role} driver"))
             continue
-        if role == "scope" and bench.mode == "scope-measure":
+        if role == "scope" and spec.mode == "scope-measure":
             ops = loaded.driver.section.operations
             if not (getattr(ops, "measure_amplitude", None) and getattr(ops, "measure_phase", None)):
                 problems.append((where, f"{name!r} has no measure_amplitude and measure_phase operations; "
@@ -127,8 +110,8 @@ def bench_drivers(plan: Any) -> tuple[dict[str, LoadedDriver], list[tuple[str, s
     return found, problems
 
 
-def bench_limits(plan: Any) -> tuple[dict[str, Limits], list[tuple[str, str]]]:
-    """Limits of every role the plan's bench uses, from its driver files, and the problems met
+def bench_limits(spec: BenchSpec) -> tuple[dict[str, Limits], list[tuple[str, str]]]:
+    """Limits of every role the bench uses, from its driver files, and the problems met
     finding or reading them as (plan field path, message)."""
-    found, problems = bench_drivers(plan)
+    found, problems = bench_drivers(spec)
     return {role: driver_limits(loaded) for role, loaded in found.items()}, problems

@@ -33,6 +33,33 @@ class Verdict(enum.IntEnum):
     FAIL = 4  # outside the limits (by at least the expanded uncertainty under the guarded rule)
 
 
+@dataclass(frozen=True)
+class Measurement:
+    """What measuring one frequency gave (a mode's result), before the engine adds where and
+    when it was measured and the run judges it: the measured fields of a Point, same units."""
+
+    gain_db: float
+    phase_deg: float
+    u_gain_db: float  # standard uncertainty (k = 1)
+    u_phase_deg: float
+    amplitude_in_v: float
+    amplitude_out_v: float
+    thd_in_db: float = float("nan")
+    thd_out_db: float = float("nan")
+    snr_in_db: float = float("nan")
+    snr_out_db: float = float("nan")
+    range_in_v: float = float("nan")
+    range_out_v: float = float("nan")
+    sample_rate_hz: float = float("nan")
+    samples: int = 0
+    captures: int = 0
+    flags: int = 0
+
+    def fields(self) -> dict[str, float | int]:
+        """The measured fields by name (the Point fields they fill)."""
+        return {name: getattr(self, name) for name in MEASUREMENT_FIELDS}
+
+
 @dataclass
 class Point:
     """A measured frequency point with its uncertainties, diagnostics and judgement."""
@@ -69,6 +96,7 @@ class Point:
 
 
 POINT_FIELDS: tuple[str, ...] = tuple(f.name for f in fields(Point))
+MEASUREMENT_FIELDS: tuple[str, ...] = tuple(f.name for f in fields(Measurement))
 
 _SUFFIX_UNITS = {"_hz": "Hz", "_db": "dB", "_deg": "degree", "_v": "V", "_s": "s", "_utc": "ISO 8601 UTC"}
 

@@ -13,15 +13,14 @@ from __future__ import annotations
 
 import math
 from collections.abc import Callable
-from typing import TYPE_CHECKING
 
 import numpy as np
 
 from sweeper.instruments.roles import MeasuringScope, ScopeReading
-from sweeper.measure.point import Flag
-
-if TYPE_CHECKING:
-    from sweeper.measure.engine import EngineSettings, EngineState
+from sweeper.measure.phasewrap import wrap_phase_deg
+from sweeper.measure.autorange import AUTORANGE_TRIES, RANGE_SMALL, set_first_ranges, span_for
+from sweeper.measure.point import Flag, Measurement
+from sweeper.measure.settings import EngineSettings, EngineState
 
 #: Fewest repeat readings per point: a type A standard deviation needs at least two, and three
 #: keeps one odd reading from dominating (JCGM 100:2008, 4.2: the experimental standard deviation
@@ -31,12 +30,6 @@ MIN_READINGS = 3
 #: reached the screen edges: an 8-bit ADC spans 255 codes of 256, and a signal the autorange
 #: aims at 90 % fill stays well below 98 % unless it clips (common practice: aim below full scale).
 CLIP_FILL = 0.98
-
-
-def wrap_deg(phase_deg: float) -> float:
-    """Wrap an angle to (-180, 180] degrees."""
-    wrapped = (phase_deg + 180.0) % 360.0 - 180.0
-    return 180.0 if wrapped == -180.0 else float(wrapped)
 
 
 def type_a_gain_phase(gains_db: np.ndarray, phases_deg: np.ndarray) -> tuple[float, float, float, float]:
@@ -51,7 +44,7 @@ def type_a_gain_phase(gains_db: np.ndarray, phases_deg: np.ndarray) -> tuple[flo
     deviations = (phases - phases[0] + 180.0) % 360.0 - 180.0
     return (
         float(gains.mean()),
-        wrap_deg(float(phases[0] + deviations.mean())),
+        wrap_phase_deg(float(phases[0] + deviations.mean())),
         float(gains.std(ddof=1) / math.sqrt(n)),
         float(deviations.std(ddof=1) / math.sqrt(n)),
     )
@@ -75,8 +68,6 @@ def _rerange(
 ) -> bool:
     """Autorange one step from a reading: up when a channel filled the screen, down when it used
     less than RANGE_SMALL of it. Returns True when a range changed."""
-    from sweeper.measure.engine import RANGE_SMALL, span_for
-
     changed = False
     smallest, largest = min(scope.limits.full_scales_v), max(scope.limits.full_scales_v)
     for ch, vpp in enumerate((reading.amplitude_in_vpp, reading.amplitude_out_vpp)):
@@ -100,20 +91,14 @@ def measure_with_scope_readings(
     scope: MeasuringScope,
     state: EngineState,
     model_response: Callable[[float], complex],
-) -> dict:
+) -> Measurement:
     """Measure one frequency from the scope's own readings (capture window already set).
 
     settings: the engine's EngineSettings; state: its EngineState (ranges carried between
     points). Autoranges on the readings first, then takes max(MIN_READINGS, averages) readings
     on fixed ranges, and more (up to max_averages) while the target uncertainty is not met.
-    Returns the Point fields the engine fills from a measurement.
     """
-    from sweeper.measure.engine import AUTORANGE_TRIES, RANGE_SMALL, _first_spans
-
-    if settings.autorange or any(math.isnan(s) for s in state.spans_v):
-        for ch, span in enumerate(_first_spans(f, settings, state, model_response)):
-            if settings.autorange or math.isnan(state.spans_v[ch]):
-                state.spans_v[ch] = scope.set_range(ch + 1, span)
+    set_first_ranges(scope, f, settings, state, model_response)
     flags = 0
     reading = scope.measure()
     retries = 0
@@ -164,7 +149,7 @@ def measure_with_scope_readings(
         state.last_frequency_hz = f
         state.last_amplitudes_v = (amp_in, amp_out)
     window = state.window
-    return dict(
+    return Measurement(
         gain_db=gain_db,
         phase_deg=phase_deg,
         u_gain_db=u_gain_db,

@@ -14,7 +14,6 @@ rows marked. A set of runs opens with a summary table and an overlay plot.
 from __future__ import annotations
 
 import base64
-import html
 import math
 import re
 from collections.abc import Mapping, Sequence
@@ -27,8 +26,10 @@ from matplotlib.figure import Figure
 
 from sweeper.verdict import VERDICT_LABELS, VERDICT_MEANINGS, run_verdict
 from sweeper.measure.point import Verdict
+from sweeper.report.extraction import extraction_section_html
 from sweeper.report.figures import FIGURE_KEYS, FIGURE_LABELS, derived_figures, figures_from_arrays
 from sweeper.report.plot import bode_figure, difference_figure, figure_png, figure_svg, overlay_figure, run_names
+from sweeper.report.html_text import esc
 from sweeper.report.runinfo import (
     as_verdict,
     end_time,
@@ -132,11 +133,6 @@ nav.toc a { color: inherit; }
 """
 
 
-def esc(value: Any) -> str:
-    """Any value as escaped HTML text (quotes escaped too, safe inside attributes)."""
-    return html.escape(text(value), quote=True)
-
-
 def _num(value: float, digits: int = 5, fixed: int | None = None) -> str:
     """A number for a table cell: fixed decimals or significant digits; dash for NaN."""
     v = float(value)
@@ -222,10 +218,7 @@ def _figures_table(frame: pd.DataFrame, metadata: Mapping[str, Any]) -> str:
 
 
 def _extraction_html(frame: pd.DataFrame, metadata: Mapping[str, Any]) -> str:
-    """Fitted part values and figures with intervals; sweeper.analysis builds on this package, so it is
-    imported when called."""
-    from sweeper.analysis.page import extraction_section_html
-
+    """Fitted part values and figures with intervals."""
     return extraction_section_html(frame, metadata)
 
 

@@ -61,11 +61,11 @@ VERDICT_MARKERS: dict[Verdict, dict[str, Any]] = {
 
 FIGURE_SIZE_IN = (8.0, 6.6)
 SMOOTH_POINTS_PER_DECADE = 200  # model curve drawn through its points on this many points per decade
-_FONT_SMALL = 7.5
-_FONT = 9.0
+FONT_SMALL = 7.5
+FONT = 9.0
 
 
-def _new_figure(size_in: tuple[float, float] = FIGURE_SIZE_IN) -> tuple[Figure, Axes, Axes]:
+def new_figure(size_in: tuple[float, float] = FIGURE_SIZE_IN) -> tuple[Figure, Axes, Axes]:
     """A figure with gain above phase, sharing a log frequency axis."""
     fig = Figure(figsize=size_in)
     FigureCanvasAgg(fig)
@@ -74,11 +74,11 @@ def _new_figure(size_in: tuple[float, float] = FIGURE_SIZE_IN) -> tuple[Figure, 
     for ax in (ax_gain, ax_phase):
         ax.grid(True, which="major", color=COLOURS["grid"], linewidth=0.8)
         ax.grid(True, which="minor", axis="x", color=COLOURS["grid"], linewidth=0.4, linestyle=":")
-        ax.tick_params(labelsize=_FONT_SMALL + 0.5)
+        ax.tick_params(labelsize=FONT_SMALL + 0.5)
         ax.set_axisbelow(True)
-    ax_gain.set_ylabel("gain (dB)", fontsize=_FONT)
-    ax_phase.set_ylabel("phase (degrees)", fontsize=_FONT)
-    ax_phase.set_xlabel("frequency (Hz)", fontsize=_FONT)
+    ax_gain.set_ylabel("gain (dB)", fontsize=FONT)
+    ax_phase.set_ylabel("phase (degrees)", fontsize=FONT)
+    ax_phase.set_xlabel("frequency (Hz)", fontsize=FONT)
     ax_gain.tick_params(labelbottom=False)
     return fig, ax_gain, ax_phase
 
@@ -87,7 +87,7 @@ _MARGINS_IN = {"left": 0.85, "right": 0.25, "top": 0.5, "bottom": 0.6}
 _LEGEND_ROW_IN = 0.21
 
 
-def _finish(fig: Figure, title: str, ncols: int, fontsize: float) -> None:
+def finish_figure(fig: Figure, title: str, ncols: int, fontsize: float) -> None:
     """Title above, legend below the axes; the figure grows by the legend's height.
 
     Margins are fixed in inches (cheaper and steadier than an automatic layout).
@@ -106,7 +106,7 @@ def _finish(fig: Figure, title: str, ncols: int, fontsize: float) -> None:
     if rows:
         fig.legend(loc="lower center", bbox_to_anchor=(0.5, 0.08 / height), ncols=ncols, fontsize=fontsize,
                    frameon=False)
-    fig.suptitle(title, fontsize=_FONT + 1, y=1 - 0.12 / height, va="top")
+    fig.suptitle(title, fontsize=FONT + 1, y=1 - 0.12 / height, va="top")
 
 
 def _smooth(frequency_hz: np.ndarray, values: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -167,7 +167,7 @@ def _draw_band(ax: Axes, f: np.ndarray, lo: np.ndarray, hi: np.ndarray, label: s
         ax.plot(f[ok], edge[ok], color=COLOURS["band_edge"], linewidth=0.7, linestyle=":", zorder=1.5)
 
 
-def _set_limits(ax: Axes, values: Sequence[np.ndarray], min_span: float) -> None:
+def set_limits(ax: Axes, values: Sequence[np.ndarray], min_span: float) -> None:
     """Y range from the data and model (not the band, which may be very wide), padded."""
     finite = [np.asarray(v, dtype=float)[np.isfinite(v)] for v in values]
     finite = [v for v in finite if v.size]
@@ -179,7 +179,7 @@ def _set_limits(ax: Axes, values: Sequence[np.ndarray], min_span: float) -> None
     ax.set_ylim(lo - pad, hi + pad)
 
 
-def _phase_ticks(ax: Axes) -> None:
+def phase_ticks(ax: Axes) -> None:
     lo, hi = ax.get_ylim()
     span = hi - lo
     if span >= 45:
@@ -225,7 +225,7 @@ def _annotate_feature(ax_gain: Axes, ax_phase: Axes, f_model: np.ndarray, g_mode
     ax_gain.annotate(
         f"{words[feature.kind]}: {format_hz(feature.frequency_hz)}",
         xy=(feature.frequency_hz, 1.0), xycoords=("data", "axes fraction"), xytext=(4, -4),
-        textcoords="offset points", rotation=90, ha="left", va="top", fontsize=_FONT_SMALL,
+        textcoords="offset points", rotation=90, ha="left", va="top", fontsize=FONT_SMALL,
         color="black", bbox={"boxstyle": "square,pad=0.15", "facecolor": "white", "edgecolor": "none", "alpha": 0.85},
         zorder=5,
     )
@@ -269,7 +269,7 @@ def _annotate_failures(
     ax.annotate(
         f"{count} failing point{'s' if count != 1 else ''}",
         xy=(f[worst], y[worst]), xytext=(sx, sy), textcoords="axes fraction", ha=ha, va=va,
-        fontsize=_FONT, fontweight="bold", color=COLOURS["fail"],
+        fontsize=FONT, fontweight="bold", color=COLOURS["fail"],
         arrowprops={"arrowstyle": "->", "color": COLOURS["fail"], "linewidth": 1.0, "shrinkB": 6},
         bbox={"boxstyle": "round,pad=0.3", "facecolor": "white", "edgecolor": COLOURS["fail"], "linewidth": 0.8},
         zorder=6,
@@ -284,7 +284,7 @@ def bode_figure(frame: pd.DataFrame, metadata: Mapping[str, Any], *, title: str 
     is marked with a dashed vertical line. Phase is unwrapped for display. k is the run's
     coverage factor (2 when not stated).
     """
-    fig, ax_gain, ax_phase = _new_figure()
+    fig, ax_gain, ax_phase = new_figure()
     k = float(metadata.get("coverage_factor") or 2.0)
     pred = prediction_of(frame, metadata)
     pf = pred["frequency_hz"]
@@ -323,9 +323,9 @@ def bode_figure(frame: pd.DataFrame, metadata: Mapping[str, Any], *, title: str 
                 edgecolor="black", linewidth=0.6, zorder=5, label=lab,
             )
 
-    _set_limits(ax_gain, [gain - u_gain, gain + u_gain, gm], 1.0)
-    _set_limits(ax_phase, [phase - u_phase, phase + u_phase, pm], 10.0)
-    _phase_ticks(ax_phase)
+    set_limits(ax_gain, [gain - u_gain, gain + u_gain, gm], 1.0)
+    set_limits(ax_phase, [phase - u_phase, phase + u_phase, pm], 10.0)
+    phase_ticks(ax_phase)
     xs = np.concatenate([f[np.isfinite(f) & (f > 0)], pf[np.isfinite(pf) & (pf > 0)]])
     if xs.size:
         ax_gain.set_xlim(xs.min() / 1.15, xs.max() * 1.15)
@@ -349,7 +349,7 @@ def bode_figure(frame: pd.DataFrame, metadata: Mapping[str, Any], *, title: str 
         _annotate_failures(ax, f, y, worst, int(np.count_nonzero(failing)),
                            np.concatenate([f, curve_f]), np.concatenate([y, curve_y]))
 
-    _finish(fig, _verdict_title(frame, metadata, title), 3, _FONT_SMALL + 0.5)
+    finish_figure(fig, _verdict_title(frame, metadata, title), 3, FONT_SMALL + 0.5)
     return fig
 
 
@@ -368,7 +368,7 @@ def _run_label(name: str, frame: pd.DataFrame, metadata: Mapping[str, Any]) -> s
     return f"{label} ({failing} failing)" if failing else label
 
 
-def _series_style(i: int) -> dict[str, Any]:
+def series_style(i: int) -> dict[str, Any]:
     return {
         "color": SERIES_COLOURS[i % len(SERIES_COLOURS)],
         "marker": SERIES_MARKERS[i % len(SERIES_MARKERS)],
@@ -397,7 +397,7 @@ def overlay_figure(runs: Sequence[Run], golden_index: int | None = None, *, titl
         raise ValueError("overlay_figure needs at least one run")
     if golden_index is not None and not 0 <= golden_index < len(runs):
         raise ValueError(f"golden_index {golden_index} is out of range for {len(runs)} runs")
-    fig, ax_gain, ax_phase = _new_figure()
+    fig, ax_gain, ax_phase = new_figure()
     band_run = runs[golden_index if golden_index is not None else 0]
     pred = prediction_of(*band_run)
     unwrapped = _unwrapped_prediction(pred)
@@ -413,15 +413,15 @@ def overlay_figure(runs: Sequence[Run], golden_index: int | None = None, *, titl
             style: dict[str, Any] = {"color": "black", "linewidth": 2.4, "linestyle": "-", "marker": None, "zorder": 4}
             label = f"golden {label}"
         else:
-            style = {**_series_style(i if golden_index is None or i < golden_index else i - 1), "zorder": 3}
+            style = {**series_style(i if golden_index is None or i < golden_index else i - 1), "zorder": 3}
         ax_gain.plot(f, g, label=label, **style)
         ax_phase.plot(f, p, **style)
         gains.append(g)
         phases.append(p)
-    _set_limits(ax_gain, gains, 1.0)
-    _set_limits(ax_phase, phases, 10.0)
-    _phase_ticks(ax_phase)
-    _finish(fig, plain(title) if title else f"{len(runs)} runs overlaid", 3 if len(runs) > 2 else 2, _FONT_SMALL)
+    set_limits(ax_gain, gains, 1.0)
+    set_limits(ax_phase, phases, 10.0)
+    phase_ticks(ax_phase)
+    finish_figure(fig, plain(title) if title else f"{len(runs)} runs overlaid", 3 if len(runs) > 2 else 2, FONT_SMALL)
     return fig
 
 
@@ -440,9 +440,9 @@ def difference_figure(
     k = float(coverage_factor or golden_md.get("coverage_factor") or 2.0)
     if np.count_nonzero(np.isfinite(golden["gain_db"].to_numpy(dtype=float))) < 2:
         raise ValueError("the golden run needs at least two measured points")
-    fig, ax_gain, ax_phase = _new_figure()
-    ax_gain.set_ylabel("gain difference (dB)", fontsize=_FONT)
-    ax_phase.set_ylabel("phase difference (degrees)", fontsize=_FONT)
+    fig, ax_gain, ax_phase = new_figure()
+    ax_gain.set_ylabel("gain difference (dB)", fontsize=FONT)
+    ax_phase.set_ylabel("phase difference (degrees)", fontsize=FONT)
     gf, gg, gp = _sorted_run(golden)
     order = np.argsort(golden["frequency_hz"].to_numpy(dtype=float), kind="stable")
     gu_gain = golden["u_gain_db"].to_numpy(dtype=float)[order]
@@ -462,7 +462,7 @@ def difference_figure(
                       interpolate_log_f(f, *sorted_finite(gf, gu_gain)))
         up = np.hypot(frame["u_phase_deg"].to_numpy(dtype=float)[order_i],
                       interpolate_log_f(f, *sorted_finite(gf, gu_phase)))
-        style = _series_style(n)
+        style = series_style(n)
         bars = {"elinewidth": 0.7, "capsize": 1.5, "zorder": 3}
         ax_gain.errorbar(f, dg, yerr=np.nan_to_num(k * ug), label=_run_label(names[i], frame, metadata),
                          **style, **bars)
@@ -470,11 +470,11 @@ def difference_figure(
         all_g.append(dg)
         all_p.append(dp)
         n += 1
-    _set_limits(ax_gain, all_g, 0.2)
-    _set_limits(ax_phase, all_p, 2.0)
+    set_limits(ax_gain, all_g, 0.2)
+    set_limits(ax_phase, all_p, 2.0)
     golden_name = names[golden_index]
-    _finish(fig, plain(title or f"difference to the golden run {golden_name} (bars \u00b1{k:g}u)"), 3,
-            _FONT_SMALL)
+    finish_figure(fig, plain(title or f"difference to the golden run {golden_name} (bars \u00b1{k:g}u)"), 3,
+            FONT_SMALL)
     return fig
 
 

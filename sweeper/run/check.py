@@ -13,9 +13,11 @@ from typing import TYPE_CHECKING
 import numpy as np
 
 from sweeper.circuits import figures
+from sweeper.instruments.limits import bench_limits
 from sweeper.instruments.roles import ScopeLimits
-from sweeper.measure.schedule import capture_window, settle_time_s, time_constants_for_target
-from sweeper.verdict.prediction import nominal_circuit, predict_limits
+from sweeper.measure.schedule import capture_window, settle_time_s
+from sweeper.measure.settings import EngineSettings
+from sweeper.run.spec import run_spec
 
 if TYPE_CHECKING:
     from sweeper.plan import Plan
@@ -58,33 +60,30 @@ def locate(plan: "Plan", field_path: str) -> str:
 
 def estimate_duration_s(
     frequencies_hz: np.ndarray,
-    plan: "Plan",
+    settings: EngineSettings,
     scope_limits: ScopeLimits | None,
-    slowest_time_constant_s: float,
     transaction_s: float = TRANSACTION_S,
 ) -> float:
     """Planned sweep time, s: settle + captures (averages) + transactions, per point."""
-    a = plan.acquisition
     total = 0.0
     for f in frequencies_hz:
-        n_tau = time_constants_for_target(a.settle_time_constants, a.target_gain_db, a.target_phase_deg)
-        total += settle_time_s(f, a.settle_s, a.settle_cycles, n_tau, slowest_time_constant_s)
+        total += settle_time_s(f, settings.settle_s, settings.settle_cycles, settings.settle_time_constants,
+                               settings.slowest_time_constant_s)
         if scope_limits is not None:
-            total += a.averages * capture_window(f, a.min_cycles, a.min_samples, scope_limits).duration_s
-        total += TRANSACTIONS_PER_POINT * a.averages * transaction_s
+            total += settings.averages * capture_window(f, settings.min_cycles, settings.min_samples,
+                                                        scope_limits).duration_s
+        total += TRANSACTIONS_PER_POINT * settings.averages * transaction_s
     return total
 
 
 def check_plan(plan: "Plan", rows: int = 7) -> CheckReport:
     """Check a loaded plan against its drivers' limits and predict its outcome."""
-    from sweeper.instruments.limits import bench_limits
-    from sweeper.run.runner import plan_frequencies
-
+    spec = run_spec(plan)
     report = CheckReport()
-    freqs = plan_frequencies(plan)
+    freqs = spec.frequencies_hz
     report.points = int(len(freqs))
     report.start_hz, report.stop_hz = float(freqs.min()), float(freqs.max())
-    limits_found, problems = bench_limits(plan)
+    limits_found, problems = bench_limits(spec.bench)
     for field_path, message in problems:
         report.problems.append(f"{locate(plan, field_path)}: {message}")
     src = limits_found.get("source")
@@ -114,11 +113,9 @@ def check_plan(plan: "Plan", rows: int = 7) -> CheckReport:
             report.problems.append(
                 f"{locate(plan, 'sweep')}: {report.start_hz:g} Hz to {report.stop_hz:g} Hz; expected within the "
                 f"meter's {meter.frequency_min_hz:g} Hz to {meter.frequency_max_hz:g} Hz")
-    circuit = nominal_circuit(plan)
-    report.figures = {k: float(v) for k, v in figures(circuit).items()}
-    report.duration_s = estimate_duration_s(freqs, plan, scope_limits, circuit.slowest_time_constant_s())
+    report.figures = {k: float(v) for k, v in figures(spec.model).items()}
+    report.duration_s = estimate_duration_s(freqs, spec.settings, scope_limits)
     pick = np.unique(np.linspace(0, len(freqs) - 1, min(rows, len(freqs))).round().astype(int))
-    lim = predict_limits(plan, freqs)
     for i in pick:
-        report.table.append({"frequency_hz": float(freqs[i]), **lim.at(int(i))})
+        report.table.append({"frequency_hz": float(freqs[i]), **spec.limits.at(int(i))})
     return report

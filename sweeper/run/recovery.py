@@ -14,12 +14,8 @@ from typing import Any
 from sweeper.instruments.errors import ConnectionLost, IdentityMismatch
 from sweeper.instruments.scales import tidy
 from sweeper.instruments.transport import prepare_session
-from sweeper.measure.engine import (
-    EngineSettings,
-    EngineState,
-    Instruments,
-    prepare_source,
-)
+from sweeper.measure.engine import prepare_source
+from sweeper.measure.settings import EngineSettings, EngineState, Instruments
 from sweeper.measure.point import Flag, Point
 from sweeper.measure.schedule import Window
 

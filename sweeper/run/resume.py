@@ -31,29 +31,18 @@ from typing import Any
 
 import numpy as np
 
-from sweeper.instruments.bench import open_bench, safe_output_off
-from sweeper.verdict import Limits
-from sweeper.measure.engine import SweepStopped
 from sweeper.measure.point import Point, Verdict
 from sweeper.plan import PlanError, load_plan_text
+from sweeper.run.outcome import EXIT_BAD_INPUT, EXIT_RUN_ERROR, RunOutcome
 from sweeper.run.recovery import engine_state_from_points, reapply
-from sweeper.run.runner import (
-    EXIT_BAD_INPUT,
-    EXIT_RUN_ERROR,
-    RunOutcome,
-    engine_settings,
-    fault_injector,
-    file_in_catalog,
-    finish_run,
-    model_response,
-    note_bench_end,
-    plan_frequencies,
-)
-from sweeper.verdict.prediction import nominal_circuit
+from sweeper.run.session import file_in_catalog, finish_run, run_on_bench
+from sweeper.run.spec import RunSpec, run_spec
+from sweeper.run.supervise import Supervisor
+from sweeper.run.transcript import Transcript, transcript_path
 from sweeper.store.journal import Journal, JournalContents, JournalError
 from sweeper.store.runfile import FINISH_EVENT, RESUMED_EVENT, RunWriter, ensure_runfile
-from sweeper.run.supervise import RunAborted, Supervisor, WriteFailed
-from sweeper.run.transcript import Transcript, transcript_path
+from sweeper.verdict import Limits, PointJudge
+from sweeper.verdict.prediction import model_response
 
 LIMIT_NAMES = ("model_gain_db", "model_phase_deg", "gain_lo_db", "gain_hi_db", "phase_lo_deg", "phase_hi_deg")
 
@@ -241,9 +230,9 @@ def resume_run(
             journal.close()
             return _already_complete(outcome, contents, done)
         plan = stored_plan(meta, plan_path)
+        spec = run_spec(plan, bool(meta.get("keep_waveforms", False)))
         freqs = np.asarray(header.get("planned_frequency_hz", []), dtype=float)
-        replanned = plan_frequencies(plan)
-        if freqs.shape != replanned.shape or not np.array_equal(freqs, replanned):
+        if freqs.shape != spec.frequencies_hz.shape or not np.array_equal(freqs, spec.frequencies_hz):
             raise ResumeRefused("the run's plan gives other frequencies with this sweeper than when the run "
                                 "started; start a new run")
         points = list(contents.points)
@@ -253,14 +242,10 @@ def resume_run(
         if any(name not in prediction for name in LIMIT_NAMES):
             raise ResumeRefused(f"{journal_path}: its header lacks the run's limits")
         limits = Limits(freqs, *(np.asarray(prediction[name], dtype=float) for name in LIMIT_NAMES))
-        settings = engine_settings(plan, bool(meta.get("keep_waveforms", False)))
-        injector, refusal = fault_injector(plan)
-        if refusal is not None:
-            raise ResumeRefused(refusal)
-        if injector is not None:
-            injector.disarm_through(len(points))
+        if spec.refusal is not None:
+            raise ResumeRefused(spec.refusal)
         outcome.points = points
-        return _resume(plan, journal, contents, meta, outcome, freqs, limits, settings, injector, last_write_s,
+        return _resume(spec, journal, contents, meta, outcome, limits, last_write_s,
                        on_start=on_start, on_point=on_point, should_stop=should_stop)
     except BaseException:
         if not journal.closed:
@@ -285,75 +270,58 @@ def _already_complete(outcome: RunOutcome, contents: JournalContents, done: dict
     return ResumeOutcome(outcome, len(contents.points), already_complete=True)
 
 
-def _resume(plan, journal, contents, meta, outcome, freqs, limits, settings, injector, last_write_s, *,
-            on_start, on_point, should_stop) -> ResumeOutcome:
+def _resume(spec: RunSpec, journal: Journal, contents: JournalContents, meta: dict[str, Any], outcome: RunOutcome,
+            limits: Limits, last_write_s: float, *, on_start, on_point, should_stop) -> ResumeOutcome:
+    """Measure on from the first unmeasured point, judged against the limits the run started
+    with (from its journal), through the same crash-safety path as a fresh run."""
     out_dir = outcome.journal_path.parent
+    freqs = spec.frequencies_hz
     resumed_at = len(outcome.points)
+    injector = spec.injector()
+    if injector is not None:
+        injector.disarm_through(resumed_at)
     transcript = Transcript(out_dir / meta["transcript"] if meta.get("transcript")
                             else transcript_path(out_dir, outcome.run_id))
     outcome.transcript_path = transcript.path
     interruption: dict[str, Any] = {}
-    writer: RunWriter | None = None
-    supervisor: Supervisor | None = None
-    opened = None
-    write_failed = False
-    try:
-        with open_bench(plan, transcript=transcript, sim_faults=injector) as bench:
-            opened = bench
-            try:
-                instruments, drivers = identity_problems(meta.get("instruments") or [], bench.identities)
-                if instruments or drivers:
-                    raise ResumeRefused("not the bench this run started on; nothing was resumed:\n  "
-                                        + "\n  ".join(instruments + drivers),
-                                        EXIT_RUN_ERROR if instruments else EXIT_BAD_INPUT)
-                now = datetime.now(timezone.utc)
-                interruption = interruption_record(contents, last_write_s, now)
-                journal.append_event(RESUMED_EVENT, **interruption)
-                transcript.note(f"resumed at point {resumed_at}: {interruption['reason']}")
-                ensure_runfile(outcome.journal_path, outcome.run_path)
-                writer = RunWriter.resume(outcome.run_path)
-                if on_start:
-                    on_start(outcome.run_id, freqs, resumed_at)
-                state = engine_state_from_points(outcome.points, freqs)
-                offset_s = next((p.elapsed_s for p in reversed(outcome.points) if math.isfinite(p.elapsed_s)), 0.0)
-                supervisor = Supervisor(
-                    plan, bench, journal, writer, freqs, limits, settings, model_response(nominal_circuit(plan)),
-                    points=outcome.points, start_utc=now - timedelta(seconds=offset_s), elapsed_offset_s=offset_s,
-                    on_point=on_point, should_stop=should_stop, injector=injector, transcript=transcript)
-                reapply(supervisor.instruments, settings, state)
-                supervisor.run(resumed_at, state)
-            except BaseException:
-                safe_output_off(bench.source)
-                raise
-            finally:
-                outcome.transactions = bench.stats.writes + bench.stats.queries
-            bench.source.set_output(False)
-            outcome.status = "complete"
-    except ResumeRefused:
-        transcript.close()
-        raise
-    except (KeyboardInterrupt, SweepStopped) as exc:
-        outcome.status = "interrupted"
-        outcome.error = "interrupted by the operator" if isinstance(exc, KeyboardInterrupt) else str(exc)
-    except (RunAborted, WriteFailed) as exc:
-        outcome.status = "error"
-        outcome.error = str(exc)
-        write_failed = isinstance(exc, WriteFailed) and not exc.clean
-    except Exception as exc:  # instrument, transport or storage faults end the run, data kept
-        outcome.status = "error"
-        outcome.error = f"{type(exc).__name__}: {exc}"
-    transcript.close()
-    note_bench_end(outcome, opened)
+    opened: dict[str, Any] = {}
+
+    def measure(bench) -> None:
+        instruments, drivers = identity_problems(meta.get("instruments") or [], bench.identities)
+        if instruments or drivers:
+            raise ResumeRefused("not the bench this run started on; nothing was resumed:\n  "
+                                + "\n  ".join(instruments + drivers),
+                                EXIT_RUN_ERROR if instruments else EXIT_BAD_INPUT)
+        now = datetime.now(timezone.utc)
+        interruption.update(interruption_record(contents, last_write_s, now))
+        journal.append_event(RESUMED_EVENT, **interruption)
+        transcript.note(f"resumed at point {resumed_at}: {interruption['reason']}")
+        ensure_runfile(outcome.journal_path, outcome.run_path)
+        opened["writer"] = writer = RunWriter.resume(outcome.run_path)
+        if on_start:
+            on_start(outcome.run_id, freqs, resumed_at)
+        state = engine_state_from_points(outcome.points, freqs)
+        offset_s = next((p.elapsed_s for p in reversed(outcome.points) if math.isfinite(p.elapsed_s)), 0.0)
+        judge = PointJudge(limits, spec.settings.decision_rule, spec.settings.coverage_factor)
+        opened["supervisor"] = supervisor = Supervisor(
+            spec.policies, bench, journal, writer, freqs, judge, spec.settings, model_response(spec.model),
+            points=outcome.points, start_utc=now - timedelta(seconds=offset_s), elapsed_offset_s=offset_s,
+            on_point=on_point, should_stop=should_stop, injector=injector, transcript=transcript)
+        reapply(supervisor.instruments, spec.settings, state)
+        supervisor.run(resumed_at, state)
+
+    write_failed = run_on_bench(outcome, spec.bench, transcript, injector, measure, passthrough=(ResumeRefused,))
     if not interruption:  # the bench never opened: nothing was resumed, the journal is as it was
         journal.close()
         return ResumeOutcome(outcome, resumed_at)
     faults, actions = _fault_counts(contents.events)
+    supervisor = opened.get("supervisor")
     if supervisor is not None:
         faults.update(supervisor.faults)
         actions.update(supervisor.actions)
     interruptions = [{k: v for k, v in e.items() if k != "kind"} for e in contents.events
                      if e["kind"] == RESUMED_EVENT] + [interruption]
-    finish_run(outcome, journal, writer, len(freqs),
+    finish_run(outcome, journal, opened.get("writer"), len(freqs),
                {"faults": dict(sorted(faults.items())), "fault_actions": dict(sorted(actions.items()))},
                {"transcript": transcript.path.name, "transcript_error": transcript.error or "",
                 "interruptions": interruptions, "resumed": len(interruptions)}, write_failed)

@@ -39,8 +39,9 @@ from sweeper.instruments.errors import (
     ScpiError,
 )
 from sweeper.instruments.roles import Capture
-from sweeper.verdict import Limits
-from sweeper.measure.engine import EngineSettings, EngineState, Instruments, sweep
+from sweeper.measure.engine import sweep
+from sweeper.measure.settings import EngineSettings, EngineState, Instruments
+from sweeper.plan.faults import FaultPolicies
 from sweeper.measure.point import Flag, Point
 from sweeper.run.recovery import clear_session, reapply, reopen_session, role_adapters
 
@@ -123,6 +124,7 @@ class _Budget:
 class Supervisor:
     """Runs a sweep over an open bench under the plan's fault policy, writing every point.
 
+    policies: the plan's fault policies; judge: fills in each point's limits and verdict;
     points: the list finished points are appended to (the caller's, so it sees them even when
     the run stops); journal, writer: an open Journal and RunWriter; injector: the simulated
     bench's FaultInjector, told which point is measured (None on a real bench); its
@@ -131,12 +133,12 @@ class Supervisor:
 
     def __init__(
         self,
-        plan: Any,
+        policies: FaultPolicies,
         bench: Any,
         journal: Any,
         writer: Any,
         frequencies_hz: Sequence[float],
-        limits: Limits,
+        judge: Callable[[Point], Point],
         settings: EngineSettings,
         model_response: Callable[[float], complex],
         *,
@@ -148,13 +150,12 @@ class Supervisor:
         injector: Any = None,
         transcript: Any = None,
     ) -> None:
-        self.plan = plan
-        self.policies = plan.faults
+        self.policies = policies
         self.bench = bench
         self.journal = journal
         self.writer = writer
         self.frequencies_hz = np.asarray(frequencies_hz, dtype=float)
-        self.limits = limits
+        self.judge = judge
         self.settings = settings
         self.model_response = model_response
         self.points = points
@@ -212,11 +213,12 @@ class Supervisor:
             self.injector.point_index = index
 
     def _measured(self, point: Point, capture: Capture | None) -> None:
-        """The engine's sink: check the error queues if the plan says so, then keep the point."""
+        """The engine's sink: check the error queues if the plan says so, judge the point, keep it."""
         if self.policies.check_errors == "each-point":
             self._check_errors()
         if point.index == self._faulted_point:
             point.flags = int(point.flags | Flag.FAULT | Flag.RETRIED)
+        point = self.judge(point)
         self.keep(point, capture)
         for name, bit in (("clipping", Flag.CLIPPED), ("low_signal", Flag.LOW_SIGNAL)):
             if point.flags & bit and getattr(self.policies, name).action == "abort":
@@ -273,13 +275,12 @@ class Supervisor:
     def _skipped_point(self, index: int) -> Point:
         elapsed = self.elapsed_s()
         nan = math.nan
-        return Point(
+        return self.judge(Point(
             index=index, frequency_hz=float(self.frequencies_hz[index]), gain_db=nan, phase_deg=nan,
             u_gain_db=nan, u_phase_deg=nan, amplitude_in_v=nan, amplitude_out_v=nan,
             flags=int(Flag.SKIPPED | Flag.FAULT), elapsed_s=elapsed,
             time_utc=(self.start_utc + timedelta(seconds=elapsed)).isoformat(timespec="milliseconds"),
-            **self.limits.at(index),
-        )
+        ))
 
     # -- faults -----------------------------------------------------------------------
 
@@ -335,7 +336,7 @@ class Supervisor:
                     self._recover(pending[0], pending[1], state)
                     pending = None
                 if self.next_index < n:
-                    sweep(self.frequencies_hz, self.settings, self.instruments, self.limits, self.model_response,
+                    sweep(self.frequencies_hz, self.settings, self.instruments, self.model_response,
                           self._measured, start_index=self.next_index, should_stop=self.should_stop,
                           start_utc=self.start_utc, elapsed_offset_s=self.elapsed_s(), state=state)
                 self._set_point(-1)

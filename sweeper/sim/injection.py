@@ -30,6 +30,7 @@ from __future__ import annotations
 
 from collections.abc import Callable, Iterable
 from dataclasses import dataclass, field
+from typing import Any
 
 import numpy as np
 
@@ -182,22 +183,20 @@ class FaultInjector:
         return False
 
 
-def injector_from_plan(plan: object, resource_of: Callable[[str], str]) -> FaultInjector | None:
-    """The injector of a plan's bench.simulation.faults (None when it lists none).
+def injector_from_specs(
+    specs: Iterable[Any], measuring_role: str, resource_of: Callable[[str], str]
+) -> FaultInjector | None:
+    """The injector of a plan's bench.simulation.faults entries (None when there are none).
 
-    resource_of(role) gives the resource name of a role; an injection without a role hits the
-    measuring instrument (the meter in meter mode, else the scope).
+    specs: the plan's Injection entries; resource_of(role) gives the resource name of a role;
+    an injection without a role hits the measuring instrument (measuring_role).
     """
-    specs = list(plan.bench.simulation.faults)  # type: ignore[attr-defined]
-    if not specs:
-        return None
-    measuring = "meter" if plan.bench.mode == "meter" else "scope"  # type: ignore[attr-defined]
     rules = []
     for spec in specs:
-        resource = "*" if spec.kind == "write_failure" else resource_of(spec.role or measuring)
+        resource = "*" if spec.kind == "write_failure" else resource_of(spec.role or measuring_role)
         rules.append(InjectionRule(
             kind=spec.kind, resource=resource, at_point=spec.at_point, probability=spec.probability,
             seed=spec.seed, times=spec.times, command=spec.command, code=spec.code, message=spec.message,
             delay_s=spec.delay_s,
         ))
-    return FaultInjector(rules)
+    return FaultInjector(rules) if rules else None

@@ -4,6 +4,7 @@ rules (ILAC-G8, ISO 14253-1) that judge each measured point and the run."""
 from sweeper.verdict.decision import (
     VERDICT_LABELS,
     VERDICT_MEANINGS,
+    PointJudge,
     decide,
     judge_point,
     margin,
@@ -16,6 +17,7 @@ __all__ = [
     "VERDICT_LABELS",
     "VERDICT_MEANINGS",
     "Limits",
+    "PointJudge",
     "build_limits",
     "decide",
     "judge_point",

@@ -8,10 +8,12 @@ side, is reported as uncertain, never as a clean pass or a clean fail).
 
 from __future__ import annotations
 
+from dataclasses import dataclass, replace
+
 import numpy as np
 
-from sweeper.measure.point import Verdict
-from sweeper.verdict.limits import wrap_deg
+from sweeper.measure.point import Point, Verdict
+from sweeper.verdict.limits import Limits, wrap_deg
 
 VERDICT_LABELS: dict[int, str] = {
     Verdict.NOT_JUDGED: "NOT JUDGED",
@@ -85,3 +87,24 @@ def run_verdict(point_verdicts: list[int] | np.ndarray) -> Verdict:
     """The run's verdict: its worst point (FAIL > FAIL? > PASS? > PASS); NOT_JUDGED if none judged."""
     judged = [int(v) for v in point_verdicts if int(v) != Verdict.NOT_JUDGED]
     return Verdict(max(judged)) if judged else Verdict.NOT_JUDGED
+
+
+@dataclass(frozen=True)
+class PointJudge:
+    """Judges measured points: fills in a point's model, limits, verdict and margins.
+
+    limits: the run's limits at its planned frequencies; rule: 'simple' or 'guarded';
+    coverage_factor: k of the expanded uncertainty U = k u.
+    """
+
+    limits: Limits
+    rule: str
+    coverage_factor: float
+
+    def __call__(self, point: Point) -> Point:
+        """The point judged (a new Point; the one given is not changed)."""
+        at = self.limits.at(point.index)
+        result = judge_point(point.gain_db, point.phase_deg, point.u_gain_db, point.u_phase_deg, at, self.rule,
+                             self.coverage_factor)
+        return replace(point, **at, verdict=int(result["verdict"]), margin_gain_db=float(result["margin_gain_db"]),
+                       margin_phase_deg=float(result["margin_phase_deg"]))

@@ -1,11 +1,14 @@
-"""What the board should do: the plan's nominal circuit, its tolerance band and the limits.
+"""What the board should do: the nominal circuit of the plan's model, its tolerance band and
+the limits around it.
 
-Bridges the plan (validated data) and the pure circuit maths; the engine, `sweeper check`
-and the run file all take their prediction from here so they agree.
+Takes the plan's `model` and `limits` sections (small validated values), never the whole plan;
+the engine's ranges, `sweeper check`, the run file and the judge all take their prediction from
+here so they agree.
 """
 
 from __future__ import annotations
 
+from collections.abc import Mapping
 from typing import TYPE_CHECKING
 
 import numpy as np
@@ -14,12 +17,13 @@ from sweeper.circuits import Circuit, Loading, build_circuit, monte_carlo_band, 
 from sweeper.verdict.limits import Limits, build_limits, wrap_deg
 
 if TYPE_CHECKING:
-    from sweeper.plan import Plan
+    from sweeper.plan.schema import Limits as LimitsSection
+    from sweeper.plan.schema import Model
 
 
-def plan_loading(plan: "Plan", reference: str | None = None) -> Loading:
-    """The plan's source and probe loading as a circuits.Loading (reference overridable)."""
-    ld = plan.model.loading
+def model_loading(model: Model, reference: str | None = None) -> Loading:
+    """The model's source and probe loading as a circuits.Loading (reference overridable)."""
+    ld = model.loading
     return Loading(
         source_resistance_ohm=ld.source_resistance_ohm,
         probe_resistance_ohm=ld.probe_resistance_ohm,
@@ -29,37 +33,36 @@ def plan_loading(plan: "Plan", reference: str | None = None) -> Loading:
     )
 
 
-def nominal_values(plan: "Plan") -> dict[str, float]:
-    """Nominal component values of the plan's model, SI units."""
-    return {name: comp.value for name, comp in plan.model.components.items()}
+def nominal_values(model: Model) -> dict[str, float]:
+    """Nominal component values of the model, SI units (Ohm, F, H)."""
+    return {name: comp.value for name, comp in model.components.items()}
 
 
-def tolerances(plan: "Plan") -> dict[str, float]:
-    """Component tolerances of the plan's model as fractions (0.01 = 1 %)."""
-    return {name: comp.tolerance_frac for name, comp in plan.model.components.items()}
+def tolerances(model: Model) -> dict[str, float]:
+    """Component tolerances of the model as fractions (0.01 = 1 %)."""
+    return {name: comp.tolerance_frac for name, comp in model.components.items()}
 
 
-def circuit_with(plan: "Plan", values: dict[str, float], reference: str | None = None) -> Circuit:
-    """The plan's topology and loading with the given component values (SI)."""
-    m = plan.model
+def circuit_with(model: Model, values: Mapping[str, float], reference: str | None = None) -> Circuit:
+    """The model's topology and loading with the given component values (SI)."""
     return build_circuit(
-        m.circuit,
-        values,
-        plan_loading(plan, reference),
-        zeros_hz=m.zeros_hz or (),
-        poles_hz=m.poles_hz or (),
-        gain=m.gain if m.gain is not None else 1.0,
+        model.circuit,
+        dict(values),
+        model_loading(model, reference),
+        zeros_hz=model.zeros_hz or (),
+        poles_hz=model.poles_hz or (),
+        gain=model.gain if model.gain is not None else 1.0,
     )
 
 
-def nominal_circuit(plan: "Plan") -> Circuit:
-    """The predicted circuit with nominal parts and the plan's loading."""
-    return circuit_with(plan, nominal_values(plan))
+def nominal_circuit(model: Model) -> Circuit:
+    """The predicted circuit with nominal parts and the model's loading."""
+    return circuit_with(model, nominal_values(model))
 
 
-def true_circuit(plan: "Plan", reference: str | None = None) -> Circuit:
-    """The simulated board: nominal parts overridden by bench.simulation.components."""
-    return circuit_with(plan, {**nominal_values(plan), **plan.bench.simulation.components}, reference)
+def true_circuit(model: Model, true_values: Mapping[str, float], reference: str | None = None) -> Circuit:
+    """A board whose parts differ from nominal: nominal values overridden by true_values (SI)."""
+    return circuit_with(model, {**nominal_values(model), **true_values}, reference)
 
 
 def gain_phase_of(h: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -67,23 +70,22 @@ def gain_phase_of(h: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     return 20 * np.log10(np.abs(h)), wrap_deg(np.degrees(np.angle(h)))
 
 
-def predict_limits(plan: "Plan", frequency_hz: np.ndarray) -> Limits:
-    """Model curve and acceptance limits at each frequency, from the plan's limits section."""
-    circuit = nominal_circuit(plan)
+def predict_limits(model: Model, limits: LimitsSection, frequency_hz: np.ndarray) -> Limits:
+    """Model curve and acceptance limits at each frequency (Hz), from the plan's limits section."""
+    circuit = nominal_circuit(model)
     gain_db, phase_deg = gain_phase_of(circuit.response(frequency_hz))
-    lim = plan.limits
     band = None
-    toleranced = any(t > 0 for t in tolerances(plan).values())
-    if lim.band != "none" and plan.model.circuit != "rational" and toleranced:
-        common = dict(loading=plan_loading(plan))
-        if lim.band == "worst-case":
-            b = worst_case_band(plan.model.circuit, nominal_values(plan), tolerances(plan), frequency_hz, **common)
+    toleranced = any(t > 0 for t in tolerances(model).values())
+    if limits.band != "none" and model.circuit != "rational" and toleranced:
+        common = dict(loading=model_loading(model))
+        if limits.band == "worst-case":
+            b = worst_case_band(model.circuit, nominal_values(model), tolerances(model), frequency_hz, **common)
         else:
-            mc = lim.monte_carlo
+            mc = limits.monte_carlo
             b = monte_carlo_band(
-                plan.model.circuit,
-                nominal_values(plan),
-                tolerances(plan),
+                model.circuit,
+                nominal_values(model),
+                tolerances(model),
                 frequency_hz,
                 samples=mc.samples,
                 percentiles=tuple(mc.percentiles),
@@ -95,15 +97,20 @@ def predict_limits(plan: "Plan", frequency_hz: np.ndarray) -> Limits:
         # The band's phases are unwrapped around the nominal; keep the model on the same branch.
         phase_deg = np.asarray(b.nominal_phase_deg, dtype=float)
         gain_db = np.asarray(b.nominal_gain_db, dtype=float)
-    masks = [m.model_dump() for m in lim.masks]
+    masks = [m.model_dump() for m in limits.masks]
     return build_limits(
         frequency_hz,
         gain_db,
         phase_deg,
         band=band,
-        allowance_gain_db=lim.allowance_gain_db,
-        allowance_phase_deg=lim.allowance_phase_deg,
-        fixed_gain_db=lim.fixed_gain_db,
-        fixed_phase_deg=lim.fixed_phase_deg,
+        allowance_gain_db=limits.allowance_gain_db,
+        allowance_phase_deg=limits.allowance_phase_deg,
+        fixed_gain_db=limits.fixed_gain_db,
+        fixed_phase_deg=limits.fixed_phase_deg,
         masks=masks,
     )
+
+
+def model_response(circuit: Circuit):
+    """The circuit's complex response at one frequency (Hz), as the engine's ranges want it."""
+    return lambda f: complex(circuit.response(np.array([f]))[0])

@@ -11,7 +11,7 @@ import pytest
 from analysis_rig import sweep
 from click.testing import CliRunner
 
-from sweeper.analysis.page import extraction_section_html
+from sweeper.report.extraction import extraction_section_html
 from sweeper.cli import main
 from sweeper.store.runfile import read_run
 

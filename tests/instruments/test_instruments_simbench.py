@@ -19,6 +19,7 @@ from sweeper.instruments.errors import (
     ScpiError,
 )
 from sweeper.plan import load_plan, load_plan_text
+from sweeper.run.spec import bench_spec
 from sweeper.sim import SCOPE_B_RESOURCE, FaultPlan
 
 R_OHM, C_F = 1.6e3, 100e-9
@@ -85,7 +86,7 @@ def prepared(bench, span_v: float = 2.5, rate_hz: float = 100e3, samples: int = 
 def test_both_dialects_capture_the_same_signal() -> None:
     # One simulated bench, both scopes on the same DUT nodes, one code path.
     plan = load_plan_text(plan_text(noise="10 mV"), "t.yaml")
-    with open_bench(plan) as bench:
+    with open_bench(bench_spec(plan)) as bench:
         prepared(bench)
         scope_b, identity_b, _ = open_role(
             bench.resource_manager, "scope", SCOPE_B_RESOURCE, load_driver(repository_drivers_dir() / "sim-scope-b.yaml")
@@ -126,7 +127,7 @@ def test_transactions_per_capture_and_per_point() -> None:
     # dialect B selects the channel with a separate write, skipped when already selected.
     for scope, first, steady, point in (("sim-scope-a.yaml", 5, 3, 4), ("sim-scope-b.yaml", 13, 4, 5)):
         plan = load_plan_text(plan_text(scope=scope), "t.yaml")
-        with open_bench(plan) as bench:
+        with open_bench(bench_spec(plan)) as bench:
             prepared(bench)
             stats, sim = bench.stats, bench.sim
             scope_resource = bench.identities[1].resource
@@ -159,13 +160,13 @@ def test_transactions_per_capture_and_per_point() -> None:
 
 
 def test_window_limits_and_rounding() -> None:
-    with open_bench(load_plan_text(plan_text(scope="sim-scope-a.yaml"), "t.yaml")) as bench:
+    with open_bench(bench_spec(load_plan_text(plan_text(scope="sim-scope-a.yaml"), "t.yaml"))) as bench:
         prepared(bench)
         # dialect A rounds a rate down to 1-2-5 and says so in :ACQ:SRAT?
         assert bench.scope.set_window(150e3, 4000) == (100e3, 4000)
         assert bench.scope.capture().sample_interval_s == pytest.approx(1e-5, rel=1e-12)
         assert bench.scope.set_window(1e12, 10) == (1e9, 1000)  # clamped to the driver's limits
-    with open_bench(load_plan_text(plan_text(scope="sim-scope-b.yaml"), "t.yaml")) as bench:
+    with open_bench(bench_spec(load_plan_text(plan_text(scope="sim-scope-b.yaml"), "t.yaml"))) as bench:
         prepared(bench)
         # dialect B: 4000 / (150 kSa/s x 10 div) = 2.67 ms/div -> 5 ms/div -> 80 kSa/s
         assert bench.scope.set_window(150e3, 4000) == (80e3, 4000)
@@ -176,7 +177,7 @@ def test_window_limits_and_rounding() -> None:
 
 
 def test_clipping_is_detected() -> None:
-    with open_bench(load_plan_text(plan_text(noise="0.5 mV"), "t.yaml")) as bench:
+    with open_bench(bench_spec(load_plan_text(plan_text(noise="0.5 mV"), "t.yaml"))) as bench:
         prepared(bench)
         assert bench.scope.set_range(1, 0.1) == pytest.approx(0.1)  # 12.5 mV/div (R10) x 8
         capture = bench.scope.capture()
@@ -196,7 +197,7 @@ def test_error_queue_names_the_refused_command(tmp_path: Path) -> None:
     (tmp_path / "wide-generator.yaml").write_text(wide)
     plan_path = tmp_path / "plan.yaml"
     plan_path.write_text(plan_text(generator="wide-generator.yaml"))
-    with open_bench(load_plan(plan_path)) as bench:  # the driver is found beside the plan
+    with open_bench(bench_spec(load_plan(plan_path))) as bench:  # the driver is found beside the plan
         assert bench.identities[0].driver == "wide-generator.yaml"
         with pytest.raises(ScpiError) as info:
             bench.source.configure_sine(15.0, 0.0, None)
@@ -215,7 +216,7 @@ def test_error_queue_names_the_refused_command(tmp_path: Path) -> None:
 def test_close_switches_the_output_off_even_on_error() -> None:
     plan = load_plan_text(plan_text(), "t.yaml")
     with pytest.raises(RuntimeError, match="operator pulled the plug"):
-        with open_bench(plan) as bench:
+        with open_bench(bench_spec(plan)) as bench:
             prepared(bench)
             assert bench.sim.generator.output_on
             raise RuntimeError("operator pulled the plug")
@@ -227,7 +228,7 @@ def test_close_switches_the_output_off_even_on_error() -> None:
 
 def test_close_never_raises_when_the_source_is_gone() -> None:
     faults = FaultPlan()
-    bench = open_bench(load_plan_text(plan_text(), "t.yaml"), sim_faults=faults)
+    bench = open_bench(bench_spec(load_plan_text(plan_text(), "t.yaml")), sim_faults=faults)
     bench.source.configure_sine(2.0, 0.0, None)
     bench.source.set_output(True)
     # the generator's link breaks on the way to 'output off' (first try and the retry)
@@ -239,7 +240,7 @@ def test_close_never_raises_when_the_source_is_gone() -> None:
 
 def test_faults_surface_as_instrument_errors() -> None:
     faults = FaultPlan()
-    with open_bench(load_plan_text(plan_text(), "t.yaml"), sim_faults=faults) as bench:
+    with open_bench(bench_spec(load_plan_text(plan_text(), "t.yaml")), sim_faults=faults) as bench:
         prepared(bench)
         bench.scope.capture()
         faults.truncate_block("TCPIP0::sim-scope-a::5025::SOCKET", keep_fraction=0.5, contains=":WAV:DATA?")
@@ -254,7 +255,7 @@ def test_faults_surface_as_instrument_errors() -> None:
 
 
 def test_wrong_instrument_is_refused() -> None:
-    with open_bench(load_plan_text(plan_text(), "t.yaml")) as bench:
+    with open_bench(bench_spec(load_plan_text(plan_text(), "t.yaml"))) as bench:
         with pytest.raises(IdentityMismatch, match="answered 'Sweeper Sim,DSO-B2,SIM-SB-0001,1.0'"):
             open_role(bench.resource_manager, "scope", SCOPE_B_RESOURCE,
                       load_driver(repository_drivers_dir() / "sim-scope-a.yaml"))
@@ -262,7 +263,7 @@ def test_wrong_instrument_is_refused() -> None:
 
 def test_meter_mode() -> None:
     plan = load_plan_text(plan_text(mode="meter", noise="0.5 mV"), "t.yaml")
-    with open_bench(plan) as bench:
+    with open_bench(bench_spec(plan)) as bench:
         assert bench.scope is None and bench.meter is not None
         assert [i.role for i in bench.identities] == ["source", "meter"]
         bench.source.configure_sine(2.0, 0.0, None)
@@ -286,16 +287,16 @@ def test_bench_limits_without_sessions(tmp_path: Path) -> None:
     from sweeper.instruments.errors import BenchError
     from sweeper.instruments.limits import bench_limits
 
-    limits, problems = bench_limits(load_plan_text(plan_text(scope="sim-scope-b.yaml"), "t.yaml"))
+    limits, problems = bench_limits(bench_spec(load_plan_text(plan_text(scope="sim-scope-b.yaml"), "t.yaml")))
     assert problems == []
     assert limits["source"].frequency_max_hz == 20e6  # DIALECTS.md: FG-1 up to 20 MHz
     assert limits["scope"].max_samples == 250_000  # DIALECTS.md: DSO-B2 record up to 250,000
     broken = tmp_path / "plan.yaml"
     broken.write_text(plan_text(scope="missing-scope.yaml", generator="sim-meter.yaml"))
-    limits, problems = bench_limits(load_plan(broken))
+    limits, problems = bench_limits(bench_spec(load_plan(broken)))
     assert limits == {}
     assert [where for where, _ in problems] == ["bench.source.driver", "bench.scope.driver"]
     assert "'sim-meter.yaml' is a meter driver; expected a source driver" in problems[0][1]
     assert "'missing-scope.yaml' not found" in problems[1][1]
     with pytest.raises(BenchError, match="bench.scope.driver: driver file 'missing-scope.yaml' not found"):
-        open_bench(load_plan(broken))
+        open_bench(bench_spec(load_plan(broken)))

@@ -23,7 +23,8 @@ from run_rig import SCOPE_B, journal_points_match_runfile, load, plan_text, skip
 
 from sweeper.measure.point import Flag, Verdict
 from sweeper.run.resume import resume_run
-from sweeper.run.runner import EXIT_RUN_ERROR, execute_run
+from sweeper.run.outcome import EXIT_RUN_ERROR
+from sweeper.run.runner import execute_run
 from sweeper.store.journal import read_journal
 from sweeper.store.runfile import frames_identical, points_frame, read_run
 

@@ -15,7 +15,7 @@ import pytest
 import pyvisa
 from transport_rig import rc_plan, sweeper_in_process
 
-from sweeper.instruments.bench import sim_config
+from sweeper.run.spec import sim_config
 from sweeper.instruments.driverfile import repository_drivers_dir
 from sweeper.sim.serve import serve_bench
 

@@ -19,9 +19,10 @@ import numpy as np
 import pytest
 from transport_rig import loopback_plan, phase_difference_deg, rc_plan, rc_reference, sweeper_in_process
 
-from sweeper.instruments.bench import sim_config
+from sweeper.run.spec import sim_config
 from sweeper.measure.point import Flag
-from sweeper.run.runner import RunOutcome, execute_run
+from sweeper.run.outcome import RunOutcome
+from sweeper.run.runner import execute_run
 from sweeper.sim.serve import NetFaultPlan, serve_bench
 from sweeper.store.journal import read_journal
 from sweeper.store.runfile import read_run

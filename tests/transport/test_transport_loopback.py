@@ -17,7 +17,8 @@ import pytest
 import pyvisa
 from transport_rig import loopback_plan, phase_difference_deg, rc_plan, rc_reference
 
-from sweeper.instruments.bench import open_bench, sim_config
+from sweeper.instruments.bench import open_bench
+from sweeper.run.spec import bench_spec, sim_config
 from sweeper.instruments.driverfile import find_driver, load_driver, repository_drivers_dir
 from sweeper.instruments.link import Link
 from sweeper.run.runner import execute_run
@@ -102,7 +103,7 @@ def test_driver_connection_settings_reach_the_pyvisa_resource(tmp_path: Path) ->
     scope_driver = load_driver(find_driver("sim-scope-a.yaml", [repository_drivers_dir()])).driver
     source_driver = load_driver(find_driver("sim-generator.yaml", [repository_drivers_dir()])).driver
     with serve_bench(sim_config(dut), instruments=("generator", "scope-a")) as served:
-        with open_bench(loopback_plan(tmp_path / "a.yaml", served.resources)) as bench:
+        with open_bench(bench_spec(loopback_plan(tmp_path / "a.yaml", served.resources))) as bench:
             source, scope = bench.links
             for link, driver in ((source, source_driver), (scope, scope_driver)):
                 assert link.resource.read_termination == driver.connection.read_termination
@@ -110,7 +111,7 @@ def test_driver_connection_settings_reach_the_pyvisa_resource(tmp_path: Path) ->
                 assert link.resource.chunk_size == driver.connection.chunk_size
                 assert link.timeout_s == pytest.approx(driver.connection.timeout_s)  # the plan names none
             assert type(link.resource.visalib).__module__.startswith("pyvisa_py")  # pyvisa-py by default
-        with open_bench(loopback_plan(tmp_path / "b.yaml", served.resources, timeout_s=0.75)) as bench:
+        with open_bench(bench_spec(loopback_plan(tmp_path / "b.yaml", served.resources, timeout_s=0.75))) as bench:
             assert [link.timeout_s for link in bench.links] == [pytest.approx(0.75)] * 2  # the plan's wins
 
 

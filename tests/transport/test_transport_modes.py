@@ -10,7 +10,7 @@ import pytest
 from transport_rig import C_F, CP_F, R_OHM, RP_OHM, phase_difference_deg, rc_plan, rc_reference
 
 from sweeper.run.check import check_plan
-from sweeper.instruments.bench import sim_config
+from sweeper.run.spec import sim_config
 from sweeper.measure.scope_measure import resolution_u_gain_db, type_a_gain_phase
 from sweeper.sim import GENERATOR_RESOURCE, SCOPE_A_RESOURCE, open_sim_resource_manager
 from sweeper.sim.instruments.scope_measurements import crossing_phase_deg, peak_to_peak, rising_crossings

@@ -1,5 +1,5 @@
-"""HTML for analysis results: the extraction table of a run (for the report) and a
-self-contained comparison page (overlay, difference to a golden run, batch spread, drift).
+"""The comparison page: one self-contained HTML page over several runs (overlay, difference to
+a golden run, batch spread, drift); the numbers come from sweeper.analysis.compare.
 
 Same rules as the report page (`sweeper.report.html`): plots inline as SVG, styles inline,
 no scripts and nothing fetched from outside; every string from run metadata escaped.
@@ -21,88 +21,14 @@ from sweeper.analysis.compare import (
     drift,
     response_of,
 )
-from sweeper.analysis.extract import (
-    HELD,
-    IN_TOLERANCE,
-    NOT_DETERMINED,
-    OUT_OF_TOLERANCE,
-    Extraction,
-    ExtractionError,
-    extract,
-    format_value,
-)
-from sweeper.analysis.plots import drift_figure, spread_figure
 from sweeper.verdict import VERDICT_LABELS
+from sweeper.report.comparison_plots import drift_figure, spread_figure
 from sweeper.report.figures import format_hz
 from sweeper.report.html import CSS, esc, inline_svg
 from sweeper.report.plot import difference_figure, figure_svg, overlay_figure, run_names
 from sweeper.report.runinfo import failing_mask, run_verdict_of
 
 Run = tuple[pd.DataFrame, Mapping[str, Any]]
-
-# Verdict colours as inline styles (the report's CSS variables), so the table needs no extra CSS.
-VERDICT_STYLE = {
-    IN_TOLERANCE: "color: var(--pass); font-weight: 600",
-    OUT_OF_TOLERANCE: "color: var(--fail); font-weight: 600",
-    NOT_DETERMINED: "color: var(--none)",
-    HELD: "color: var(--none)",
-}
-UNDECIDED_STYLE = "color: var(--failu); font-weight: 600"
-FINDING_STYLE = "border-left: 6px solid var(--rule); padding: .4rem .7rem; background: var(--zebra)"
-
-
-def _interval(low: float, high: float, unit: str) -> str:
-    if not (math.isfinite(low) and math.isfinite(high)):
-        return "\u2014"
-    return f"{esc(format_value(low, unit, 5))} \u2026 {esc(format_value(high, unit, 5))}"
-
-
-def _deviation(p) -> str:
-    if p.kind == "reference" or not math.isfinite(p.deviation_frac):
-        return "\u2014"
-    return f"{p.deviation_frac:+.3g} dB" if p.unit == "dB" else f"{p.deviation_frac * 100:+.3g} %"
-
-
-def extraction_table_html(extraction: Extraction) -> str:
-    """The fitted parameters as an HTML table, then the fit quality and the finding in words."""
-    rows = []
-    for p in extraction.parameters:
-        name = p.name + (f" ({p.condition})" if p.condition else "")
-        value = esc(format_value(p.value, p.unit, 5))
-        style = VERDICT_STYLE.get(p.verdict, UNDECIDED_STYLE)
-        rows.append(
-            f'<tr data-name="{esc(p.name)}"><th scope="row">{esc(name)}</th><td class="num">{value}</td>'
-            f'<td class="num">{_interval(p.low, p.high, p.unit)}</td>'
-            f'<td class="num">{esc(format_value(p.nominal, p.unit, 5))}</td>'
-            f'<td class="num">{_interval(p.tolerance_low, p.tolerance_high, p.unit)}</td>'
-            f'<td class="num">{esc(_deviation(p))}</td><td class="verdict" style="{style}">{esc(p.verdict)}</td></tr>'
-        )
-    pct = f"{extraction.level * 100:g} %"
-    head = (f'<thead><tr><th>parameter</th><th class="num">fitted</th><th class="num">{pct} interval</th>'
-            '<th class="num">nominal</th><th class="num">tolerance range</th><th class="num">deviation</th>'
-            "<th>verdict</th></tr></thead>")
-    quality = (
-        f"Weighted least squares on {extraction.points} points (gain and phase, each weighted by its standard "
-        f"uncertainty): chi-square {extraction.chi2:.4g} for {extraction.dof} degrees of freedom (reduced "
-        f"{extraction.reduced_chi2:.3g}); intervals k = {extraction.coverage_factor:.3g}"
-        + (f", uncertainties scaled by {extraction.scale:.3g} for the scatter seen" if extraction.scale > 1 else "")
-        + f". {extraction.reference} is held at nominal: a sweep identifies only ratios of impedances."
-    )
-    return (
-        f'<table class="figures extraction">{head}<tbody>{"".join(rows)}</tbody></table>'
-        + f'<p class="finding" style="{FINDING_STYLE}">{esc(extraction.finding)}</p><p class="note">{esc(quality)}</p>'
-    )
-
-
-def extraction_section_html(frame: pd.DataFrame, metadata: Mapping[str, Any]) -> str:
-    """The report's parameter-extraction block for one run; a note instead when the run cannot
-    be fitted (no readable plan, no component model, too few points)."""
-    try:
-        extraction = extract(frame, metadata)
-    except (ExtractionError, ValueError, ArithmeticError, np.linalg.LinAlgError) as exc:
-        return f'<p class="note">Parameter extraction not available: {esc(exc)}</p>'
-    return extraction_table_html(extraction)
-
 
 def _figure(fig, prefix: str, label: str, caption: str) -> str:
     return (f'<figure class="plot">{inline_svg(figure_svg(fig), prefix, label)}'

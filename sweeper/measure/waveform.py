@@ -1,0 +1,134 @@
+"""Waveform mode: both channels captured in one acquisition, each fitted at the known
+frequency (IEEE Std 1057), autoranged, averaged until the target uncertainty is met."""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+
+import numpy as np
+
+from sweeper.instruments.roles import Capture, Scope
+from sweeper.measure.autorange import AUTORANGE_TRIES, RANGE_SMALL, set_first_ranges, span_for
+from sweeper.measure.gainphase import GainPhase, average_gain_phase, gain_phase
+from sweeper.measure.point import Flag, Measurement
+from sweeper.measure.schedule import HARMONICS, Window
+from sweeper.measure.settings import EngineSettings, EngineState
+from sweeper.measure.sinefit import SineFit, fit_sine, fit_sine_4
+
+#: THD above this (dB) flags a point as distorted (1 %: common practice for a linear DUT test).
+THD_FLAG_DB = -40.0
+#: SNR below this (dB) flags a channel as low signal.
+SNR_FLAG_DB = 20.0
+
+
+def fit_capture(capture: Capture, frequency_hz: float, settings: EngineSettings) -> list[SineFit]:
+    """Fit both channels at the known frequency (three-parameter) or refine it (four-parameter)."""
+    nyquist_harmonics = int((0.5 / capture.sample_interval_s) / frequency_hz - 1e-9)
+    harmonics = max(1, min(HARMONICS, nyquist_harmonics))
+    if settings.fit == "four-parameter":
+        return [fit_sine_4(row, frequency_hz, capture.sample_interval_s) for row in capture.volts]
+    return fit_sine(capture.volts, frequency_hz, capture.sample_interval_s, harmonics=harmonics)
+
+
+def acquire(
+    f: float, settings: EngineSettings, scope: Scope, state: EngineState, window: Window
+) -> tuple[Capture, list[SineFit], int, int]:
+    """One capture with autorange: (capture, its fits, re-captures used, flags)."""
+    flags = 0
+    retries = 0
+    while True:
+        capture = scope.capture()
+        fits = fit_capture(capture, f, settings)
+        if not settings.autorange:
+            break
+        changed = False
+        smallest = min(scope.limits.full_scales_v)
+        largest = max(scope.limits.full_scales_v)
+        for ch in (0, 1):
+            span = capture.full_scale_v[ch]
+            if capture.clipped[ch]:
+                if span < largest:
+                    wanted = max(span * 2.5, span_for(fits[ch].amplitude_v, settings.offset_v))
+                    state.spans_v[ch] = scope.set_range(ch + 1, min(wanted, largest))
+                    changed = True
+            elif 2 * fits[ch].amplitude_v < RANGE_SMALL * span and span > smallest:
+                wanted = span_for(fits[ch].amplitude_v, settings.offset_v)
+                new = scope.set_range(ch + 1, max(wanted, smallest))
+                if new < span:
+                    state.spans_v[ch] = new
+                    changed = True
+        if not changed or retries >= AUTORANGE_TRIES:
+            break
+        retries += 1
+        flags |= Flag.RETRIED
+    if any(capture.clipped):
+        flags |= Flag.CLIPPED
+    return capture, fits, retries, flags
+
+
+def measure_with_scope(
+    f: float,
+    settings: EngineSettings,
+    scope: Scope,
+    state: EngineState,
+    model_response: Callable[[float], complex],
+) -> tuple[Measurement, Capture]:
+    """Measure one frequency f (Hz) in waveform mode (window already set): autoranged captures,
+    fits, averaging to the target uncertainty. Returns the measurement and the last capture."""
+    window = state.window
+    assert window is not None
+    set_first_ranges(scope, f, settings, state, model_response)
+    results: list[GainPhase] = []
+    fits_all: list[list[SineFit]] = []
+    flags = 0
+    captures = 0
+    capture: Capture | None = None
+    while True:
+        capture, fits, _retries, cflags = acquire(f, settings, scope, state, window)
+        flags |= cflags
+        captures += 1
+        results.append(gain_phase(fits[0], fits[1]))
+        fits_all.append(fits)
+        if captures < settings.averages:
+            continue
+        gp = average_gain_phase(results) if len(results) > 1 else results[0]
+        met = (settings.target_gain_db is None or gp.u_gain_db <= settings.target_gain_db) and (
+            settings.target_phase_deg is None or gp.u_phase_deg <= settings.target_phase_deg
+        )
+        if met:
+            break
+        if captures >= settings.max_averages:
+            flags |= Flag.UNCERTAINTY_MISSED
+            break
+    last = fits_all[-1]
+    amp_in = float(np.mean([fs[0].amplitude_v for fs in fits_all]))
+    amp_out = float(np.mean([fs[1].amplitude_v for fs in fits_all]))
+    for fit in last:
+        if fit.thd_db > THD_FLAG_DB:
+            flags |= Flag.HIGH_DISTORTION
+        if fit.snr_db < SNR_FLAG_DB:
+            flags |= Flag.LOW_SIGNAL
+    state.last_frequency_hz = f
+    state.last_amplitudes_v = (amp_in, amp_out)
+    measurement = Measurement(
+        gain_db=gp.gain_db,
+        phase_deg=gp.phase_deg,
+        u_gain_db=gp.u_gain_db,
+        u_phase_deg=gp.u_phase_deg,
+        amplitude_in_v=amp_in,
+        amplitude_out_v=amp_out,
+        thd_in_db=last[0].thd_db,
+        thd_out_db=last[1].thd_db,
+        snr_in_db=last[0].snr_db,
+        snr_out_db=last[1].snr_db,
+        range_in_v=capture.full_scale_v[0],
+        range_out_v=capture.full_scale_v[1],
+        sample_rate_hz=1.0 / capture.sample_interval_s,
+        samples=int(capture.volts.shape[1]),
+        captures=captures,
+        flags=int(flags),
+    )
+    return measurement, capture
+
+
+__all__ = ["SNR_FLAG_DB", "THD_FLAG_DB", "acquire", "fit_capture", "measure_with_scope"]

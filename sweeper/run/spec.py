@@ -1,0 +1,220 @@
+"""The plan translated once, in one place, into what each stage of a run needs.
+
+A validated plan is a document; the stages below it (bench opener, engine, judge, fault
+supervision, simulated fault injection, the run's metadata) each take a small value built
+here, never the whole plan, so a run reads top-down: plan -> RunSpec -> stages.
+"""
+
+from __future__ import annotations
+
+import platform
+import socket
+from dataclasses import dataclass
+from datetime import datetime
+from typing import TYPE_CHECKING, Any
+
+import numpy as np
+
+from sweeper.circuits import Circuit
+from sweeper.instruments.driverfile import driver_search_path
+from sweeper.instruments.spec import SIM_DEFAULTS, BenchSpec, RoleSpec, roles_for
+from sweeper.measure.schedule import frequency_grid, time_constants_for_target
+from sweeper.measure.settings import EngineSettings
+from sweeper.plan.faults import FaultPolicies
+from sweeper.verdict import Limits, PointJudge
+from sweeper.verdict.prediction import nominal_circuit, predict_limits, true_circuit
+
+if TYPE_CHECKING:
+    from sweeper.plan import Plan
+    from sweeper.sim import SimConfig
+    from sweeper.sim.injection import FaultInjector
+
+
+def plan_frequencies(plan: Plan) -> np.ndarray:
+    """The plan's frequency grid in measurement order, Hz."""
+    s = plan.sweep
+    return frequency_grid(s.start_hz, s.stop_hz, s.points_per_decade, s.points, s.spacing, s.direction,
+                          s.frequencies_hz)
+
+
+def engine_settings(plan: Plan, keep_waveforms: bool = False) -> EngineSettings:
+    """The plan's stimulus, acquisition and decision settings as the engine's plain numbers."""
+    a, st = plan.acquisition, plan.stimulus
+    tau = nominal_circuit(plan.model).slowest_time_constant_s()
+    return EngineSettings(
+        amplitude_vpp=st.amplitude_vpp,
+        offset_v=st.offset_v,
+        load_ohm=st.load_ohm,
+        min_cycles=a.min_cycles,
+        min_samples=a.min_samples,
+        settle_s=a.settle_s,
+        settle_cycles=a.settle_cycles,
+        settle_time_constants=time_constants_for_target(a.settle_time_constants, a.target_gain_db,
+                                                        a.target_phase_deg),
+        slowest_time_constant_s=tau,
+        averages=a.averages,
+        max_averages=a.max_averages,
+        target_gain_db=a.target_gain_db,
+        target_phase_deg=a.target_phase_deg,
+        autorange=a.autorange,
+        fit=a.fit,
+        decision_rule=plan.limits.decision_rule,
+        coverage_factor=plan.limits.coverage_factor,
+        keep_waveforms=keep_waveforms,
+        mode=plan.bench.mode,
+    )
+
+
+def sim_config(plan: Plan, faults: object | None = None) -> SimConfig:
+    """The sweeper.sim SimConfig of a plan's simulated DUT: the model's topology with the true
+    part values of bench.simulation.components, under the plan's loading, referenced to the DUT
+    input node (the simulator adds its generator's own source resistance); also what
+    `sweeper bench serve` serves."""
+    from sweeper.sim import SimConfig
+
+    simulation = plan.bench.simulation
+    return SimConfig(
+        circuit=true_circuit(plan.model, simulation.components, reference="input"),
+        noise_v=simulation.noise_v,
+        noise_range_frac=simulation.noise_range_frac,
+        distortion_frac=simulation.distortion_frac,
+        seed=simulation.seed,
+        realtime=simulation.realtime,
+        faults=faults,
+        transient=simulation.transient,
+    )
+
+
+def bench_spec(plan: Plan) -> BenchSpec:
+    """The plan's bench: its roles with resources, driver files and timeouts (the plan's timeout
+    when it gives one, else the driver file's), driver folders, and the simulation."""
+    bench = plan.bench
+    roles = []
+    for role in roles_for(bench.mode):
+        ref = getattr(bench, role)
+        if ref is None:
+            if bench.kind == "simulated":
+                resource, driver = SIM_DEFAULTS[role]
+                roles.append(RoleSpec(role, resource, driver, None, f"bench.{role}"))
+            continue
+        timeout_s = ref.timeout_s if "timeout_s" in ref.model_fields_set else None
+        roles.append(RoleSpec(role, ref.resource, ref.driver, timeout_s, f"bench.{role}"))
+    simulated = bench.kind == "simulated" or (bench.visa_library or "").strip() == "@sim"
+    return BenchSpec(
+        kind=bench.kind,
+        mode=bench.mode,
+        roles=tuple(roles),
+        visa_library=bench.visa_library,
+        search_path=tuple(driver_search_path(plan.path)),
+        sim=sim_config(plan) if simulated else None,
+    )
+
+
+def plan_metadata(plan: Plan) -> dict[str, Any]:
+    """What a run file records of its plan and DUT (traceability), apart from the run's own facts."""
+    return {
+        "plan_name": plan.name,
+        "plan_yaml": plan.source_text,
+        "plan_sha256": plan.sha256,
+        "plan_path": str(plan.path) if plan.path else "",
+        "dut": {"board": plan.dut.board, "serial": plan.dut.serial, "description": plan.dut.description},
+        "operator": plan.metadata.operator,
+        "station": plan.metadata.station,
+        "project": plan.metadata.project,
+        "tags": list(plan.metadata.tags),
+        "bench_kind": plan.bench.kind,
+        "mode": plan.bench.mode,
+        "decision_rule": plan.limits.decision_rule,
+        "coverage_factor": plan.limits.coverage_factor,
+    }
+
+
+@dataclass(frozen=True)
+class RunSpec:
+    """Everything one run of a plan needs, built by `run_spec`.
+
+    frequencies_hz: planned frequencies in measurement order (Hz); settings: the engine's;
+    bench: what to open; policies: the fault policies; injections: faults to inject on a
+    simulated bench (the plan's entries); limits: model and limits at the planned frequencies;
+    model: the nominal circuit (the engine's first ranges); metadata: the plan's part of the
+    run metadata; refusal: why the run must not start (None when it may).
+    """
+
+    serial: str
+    frequencies_hz: np.ndarray
+    settings: EngineSettings
+    bench: BenchSpec
+    policies: FaultPolicies
+    limits: Limits
+    model: Circuit
+    metadata: dict[str, Any]
+    injections: tuple[Any, ...] = ()
+    refusal: str | None = None
+    keep_waveforms: bool = False
+
+    @property
+    def judge(self) -> PointJudge:
+        """The judge of this run's points (limits, decision rule, coverage factor)."""
+        return PointJudge(self.limits, self.settings.decision_rule, self.settings.coverage_factor)
+
+    def injector(self) -> FaultInjector | None:
+        """A fresh fault injector for the simulated bench (rules carry state, so one per run)."""
+        if not self.injections or self.refusal is not None:
+            return None
+        from sweeper.sim.injection import injector_from_specs
+
+        measuring = "meter" if self.bench.mode == "meter" else "scope"
+
+        def resource_of(role: str) -> str:
+            ref = self.bench.role(role)
+            return ref.resource if ref is not None else SIM_DEFAULTS[role][0]
+
+        return injector_from_specs(self.injections, measuring, resource_of)
+
+
+def run_spec(plan: Plan, keep_waveforms: bool = False) -> RunSpec:
+    """Translate a validated plan into a RunSpec (the one place where a run reads its plan)."""
+    frequencies = plan_frequencies(plan)
+    bench = bench_spec(plan)
+    injections = tuple(plan.bench.simulation.faults)
+    refusal = None
+    if injections and not bench.simulated:
+        refusal = "bench.simulation.faults: faults are injected on a simulated bench only; nothing was run"
+    return RunSpec(
+        serial=plan.dut.serial,
+        frequencies_hz=frequencies,
+        settings=engine_settings(plan, keep_waveforms),
+        bench=bench,
+        policies=plan.faults,
+        limits=predict_limits(plan.model, plan.limits, frequencies),
+        model=nominal_circuit(plan.model),
+        metadata=plan_metadata(plan),
+        injections=injections,
+        refusal=refusal,
+        keep_waveforms=keep_waveforms,
+    )
+
+
+def run_metadata(spec: RunSpec, run_id: str, start: datetime, campaign: str | None) -> dict[str, Any]:
+    """The run's traceability record (instrument identities are added once the bench is open)."""
+    return {
+        "run_id": run_id,
+        "campaign_id": campaign or "",
+        **spec.metadata,
+        "host": socket.gethostname(),
+        "platform": platform.platform(),
+        "start_utc": start.isoformat(timespec="seconds"),
+        "keep_waveforms": bool(spec.keep_waveforms),  # `sweeper resume` goes on the same way
+    }
+
+
+__all__ = [
+    "RunSpec",
+    "bench_spec",
+    "engine_settings",
+    "plan_frequencies",
+    "plan_metadata",
+    "run_metadata",
+    "run_spec",
+    "sim_config",
+]
