@@ -20,6 +20,7 @@ from sweeper.cli.common import (
     read_or_exit,
     run_paths,
 )
+from sweeper.run.outcome import ExitCode
 
 PLOT_SUFFIXES = (".png", ".svg")
 
@@ -62,17 +63,17 @@ def compare(runs: tuple[str, ...], runs_dir: str, golden: str | None, at: tuple[
         drift,
         response_of,
     )
-    from sweeper.verdict import VERDICT_LABELS
     from sweeper.report.figures import format_hz
     from sweeper.report.plot import run_names
     from sweeper.report.runinfo import failing_mask, run_verdict_of
+    from sweeper.verdict import VERDICT_LABELS
 
     at_hz = [_frequency(text) for text in at]
     out = Path(out_path) if out_path else None
     if out is not None and out.suffix.lower() not in (".html", *PLOT_SUFFIXES):
         err_console.print(f"--out {out}: unknown format {out.suffix or '(none)'!r}; expected .html, .png or .svg",
                           markup=False)
-        sys.exit(2)
+        sys.exit(ExitCode.BAD_INPUT)
     paths = run_paths(runs, runs_dir)
     golden_index = None
     if golden is not None:
@@ -122,7 +123,7 @@ def compare(runs: tuple[str, ...], runs_dir: str, golden: str | None, at: tuple[
             drift_result = drift(responses, at_hz)
         except ValueError as exc:
             err_console.print(f"--at: {exc}", markup=False)
-            sys.exit(2)
+            sys.exit(ExitCode.BAD_INPUT)
         dt = Table(title="drift at chosen frequencies: value (change from the first run)", box=box.SIMPLE_HEAD,
                    pad_edge=False)
         dt.add_column("start (UTC)")
@@ -187,7 +188,7 @@ def diagnose(run: str, runs_dir: str) -> None:
         ex = extract(frame, meta)
     except ExtractionError as exc:
         err_console.print(f"{path}: cannot fit: {exc}", markup=False)
-        sys.exit(2)
+        sys.exit(ExitCode.BAD_INPUT)
     dut = meta.get("dut") or {}
     who = escape(f"{dut.get('board') or ''} {dut.get('serial') or ''}")
     console.print(f"[bold]{who}[/]  run {escape(str(meta.get('run_id')))}  model {ex.topology}", highlight=False)
@@ -227,4 +228,4 @@ def diagnose(run: str, runs_dir: str) -> None:
         markup=False,
     )
     console.print(f"finding: {ex.finding}", markup=False)
-    sys.exit(0 if ex.explained_in_tolerance else 1)
+    sys.exit(ExitCode.PASS if ex.explained_in_tolerance else ExitCode.FAIL)

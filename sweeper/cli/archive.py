@@ -16,9 +16,10 @@ from sweeper.cli.common import (
     open_catalog,
     read_or_exit,
 )
-from sweeper.verdict import VERDICT_LABELS
 from sweeper.measure.point import Verdict
 from sweeper.plan import format_quantity
+from sweeper.run.outcome import ExitCode
+from sweeper.verdict import VERDICT_LABELS
 
 
 @main.command("runs")
@@ -38,7 +39,7 @@ def runs_command(runs_dir, serial, verdict, since, until, plan, station, limit) 
                                    station=station, limit=limit)
         except ValueError as exc:
             err_console.print(f"runs: {exc}", markup=False)
-            sys.exit(2)
+            sys.exit(ExitCode.BAD_INPUT)
     table = Table()
     for col in ("run id", "start (UTC)", "serial", "plan", "station", "verdict", "status"):
         table.add_column(col)
@@ -62,7 +63,7 @@ def show(run: str, runs_dir: str) -> None:
                 path = catalog.resolve(catalog.get(run))
             except KeyError as exc:
                 err_console.print(f"show: {exc}", markup=False)
-                sys.exit(2)
+                sys.exit(ExitCode.BAD_INPUT)
     frame, meta = read_or_exit(path, read_run)
     table = Table(show_header=False, title=str(path))
     for key in ("run_id", "plan_name", "plan_sha256", "start_utc", "end_utc", "station", "operator", "host",
@@ -97,7 +98,7 @@ def verify(runs_dir: str) -> None:
         style = "green" if r.state == "ok" else "bold red"
         console.print(f"[{style}]{r.state:10}[/] {r.run_id}  {r.path}  {r.detail}")
     console.print(f"{len(results)} file(s) checked, {len(bad)} problem(s)")
-    sys.exit(1 if bad else 0)
+    sys.exit(ExitCode.FAIL if bad else ExitCode.PASS)
 
 
 @main.group()

@@ -11,6 +11,7 @@ import click
 
 from sweeper.cli import main
 from sweeper.cli.common import err_console, load_plan_or_exit
+from sweeper.run.outcome import ExitCode
 
 FAULT_HELP = (
     "Inject a network fault: KIND:INSTRUMENT[:TEXT], KIND one of drop, stall[=SECONDS], cut[=FRACTION], "
@@ -94,12 +95,12 @@ def serve(plan_path: str, host: str, base_port: int, allow_remote: bool, instrum
             parse_fault(spec, net_faults)
         except ValueError as exc:
             err_console.print(f"--fault {exc}", markup=False)
-            sys.exit(2)
+            sys.exit(ExitCode.BAD_INPUT)
     try:
         config = sim_config(plan)
     except Exception as exc:  # noqa: BLE001 - a DUT the simulator cannot build is bad input
         err_console.print(f"{plan_path}: cannot simulate this DUT: {exc}", markup=False)
-        sys.exit(2)
+        sys.exit(ExitCode.BAD_INPUT)
     if seed is not None:
         config = replace(config, seed=seed)
     try:
@@ -107,11 +108,11 @@ def serve(plan_path: str, host: str, base_port: int, allow_remote: bool, instrum
                              faults=net_faults, allow_remote=allow_remote)
     except ValueError as exc:
         err_console.print(f"--host {host}: {exc}", markup=False)
-        sys.exit(2)
+        sys.exit(ExitCode.BAD_INPUT)
     except OSError as exc:
         err_console.print(f"cannot listen on {host} from port {base_port}: {exc.strerror or exc} "
                           "(another program may hold the port: try --base-port)", markup=False)
-        sys.exit(3)
+        sys.exit(ExitCode.RUN_ERROR)
     stop = {"flag": False}
 
     def on_signal(signum, frame) -> None:  # noqa: ARG001 - signal handler signature
@@ -144,7 +145,7 @@ def serve(plan_path: str, host: str, base_port: int, allow_remote: bool, instrum
         counts = ", ".join(f"{name} {handle.bench.counters[resource]}"
                            for name, resource in _sim_names(handle).items())
         click.echo(f"stopped; messages served: {counts}")
-    sys.exit(0)
+    sys.exit(ExitCode.PASS)
 
 
 def _sim_names(handle) -> dict[str, str]:

@@ -19,9 +19,10 @@ from sweeper.cli.common import (
     console,
     err_console,
 )
-from sweeper.verdict import VERDICT_LABELS
 from sweeper.measure.point import Verdict
 from sweeper.plan import format_quantity, parse_quantity
+from sweeper.run.outcome import ExitCode
+from sweeper.verdict import VERDICT_LABELS
 
 
 def offset_text(seconds: float) -> str:
@@ -43,7 +44,7 @@ def _time_option(text: str | None, option: str) -> float | None:
         return parse_quantity(text, "time")
     except ValueError as exc:
         err_console.print(f"{option}: {exc}", markup=False)
-        sys.exit(2)
+        sys.exit(ExitCode.BAD_INPUT)
 
 
 def render_drift(table: pd.DataFrame, sweeps: int, campaign_id: str) -> None:
@@ -89,7 +90,7 @@ def _write_csv(table: pd.DataFrame, path: str) -> None:
         write_drift_csv(table, path)
     except OSError as exc:
         err_console.print(f"{path}: cannot write the drift CSV: {exc.strerror or exc}", markup=False)
-        sys.exit(3)
+        sys.exit(ExitCode.RUN_ERROR)
     console.print(f"drift table written to {path}")
 
 
@@ -128,7 +129,7 @@ def repeat(plan_path: str, out_dir: str, count: int | None, every: str | None, f
         schedule = Schedule(count=count, every_s=every_s, duration_s=duration_s)
     except ValueError as exc:
         err_console.print(f"repeat: {exc} (use --count N, or --every T --for D)", markup=False)
-        sys.exit(2)
+        sys.exit(ExitCode.BAD_INPUT)
     plan, report = checked_plan_or_exit(plan_path)
     campaign_id = new_campaign_id()
     clock = clock_for(plan)
@@ -178,7 +179,7 @@ def repeat(plan_path: str, out_dir: str, count: int | None, every: str | None, f
         sweeps = result_sweeps(result)
     except CampaignReadError as exc:
         err_console.print(f"drift: {exc}", markup=False)
-        sys.exit(3)
+        sys.exit(ExitCode.RUN_ERROR)
     if sweeps:
         table = drift_table(sweeps)
         render_drift(table, len(sweeps), campaign_id)
@@ -207,10 +208,10 @@ def drift(campaign_id: str, runs_dir: str, csv_path: str | None) -> None:
         table, sweeps = campaign_drift(runs_dir, records[0][0].campaign)
     except CampaignReadError as exc:
         err_console.print(f"drift: {exc}", markup=False)
-        sys.exit(3)
+        sys.exit(ExitCode.RUN_ERROR)
     except CampaignError as exc:
         err_console.print(f"drift: {exc}", markup=False)
-        sys.exit(2)
+        sys.exit(ExitCode.BAD_INPUT)
     render_drift(table, len(sweeps), records[0][0].campaign)
     if csv_path:
         _write_csv(table, csv_path)

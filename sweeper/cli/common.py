@@ -10,6 +10,7 @@ from rich.console import Console
 
 from sweeper.measure.point import Flag, Verdict
 from sweeper.plan import PlanError, load_plan
+from sweeper.run.outcome import ExitCode
 
 console = Console(highlight=False)
 err_console = Console(stderr=True, highlight=False, soft_wrap=True)
@@ -39,7 +40,7 @@ def load_plan_or_exit(plan_path: str):
         for problem in exc.problems:
             err_console.print(str(problem), markup=False)
         err_console.print(f"{len(exc.problems)} problem(s) in {plan_path}; nothing was run.", markup=False)
-        sys.exit(2)
+        sys.exit(ExitCode.BAD_INPUT)
 
 
 def checked_plan_or_exit(plan_path: str):
@@ -55,7 +56,7 @@ def checked_plan_or_exit(plan_path: str):
         for problem in report.problems:
             err_console.print(problem, markup=False)
         err_console.print(f"{len(report.problems)} problem(s) in {plan_path}; nothing was run.", markup=False)
-        sys.exit(2)
+        sys.exit(ExitCode.BAD_INPUT)
     return plan, report
 
 
@@ -72,12 +73,12 @@ def open_catalog(runs_dir: str):
     if not path.exists():
         err_console.print(f"{path}: no catalog here (expected one beside the runs; "
                           f"`sweeper catalog rebuild --runs {runs_dir}` makes one from the run files)", markup=False)
-        sys.exit(2)
+        sys.exit(ExitCode.BAD_INPUT)
     try:
         return Catalog(path)
     except CatalogError as exc:
         err_console.print(str(exc), markup=False)
-        sys.exit(3)
+        sys.exit(ExitCode.RUN_ERROR)
 
 
 RUNS_OPTION = click.option("--runs", "runs_dir", default="runs", show_default=True,
@@ -90,7 +91,7 @@ def read_or_exit(path: Path, reader):
         return reader(path)
     except Exception as exc:  # an unreadable file is reported, not raised
         err_console.print(f"{path}: cannot read run file: {exc}", markup=False)
-        sys.exit(3)
+        sys.exit(ExitCode.RUN_ERROR)
 
 
 def run_paths(runs: tuple[str, ...], runs_dir: str) -> list[Path]:
@@ -106,7 +107,7 @@ def run_paths(runs: tuple[str, ...], runs_dir: str) -> list[Path]:
                 paths.append(cat.resolve(cat.get(run)))
             except KeyError as exc:
                 err_console.print(f"{run}: {exc}", markup=False)
-                sys.exit(2)
+                sys.exit(ExitCode.BAD_INPUT)
     return paths
 
 

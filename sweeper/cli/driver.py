@@ -9,6 +9,7 @@ from rich.table import Table
 
 from sweeper.cli import main
 from sweeper.cli.common import console, err_console
+from sweeper.run.outcome import ExitCode
 
 STATUS_STYLE = {"ok": "green", "failed": "bold red", "skipped": "dim"}
 
@@ -48,7 +49,7 @@ def check(files: tuple[str, ...]) -> None:
         click.echo(f"  identify: {', '.join(driver.identify) or '(none)'}")
         click.echo(f"  operations: {', '.join(used)}")
         click.echo(f"  limits: {describe_limits(driver_limits(result.loaded))}")
-    sys.exit(2 if bad else 0)
+    sys.exit(ExitCode.BAD_INPUT if bad else ExitCode.PASS)
 
 
 def describe_limits(limits) -> str:
@@ -101,24 +102,24 @@ def try_(file: str, resource: str, backend: str, timeout_s: float | None, freque
         frequency_hz = parse_quantity(frequency, "frequency")
     except ValueError as exc:
         err_console.print(f"--frequency: {exc}", markup=False)
-        sys.exit(2)
+        sys.exit(ExitCode.BAD_INPUT)
     name_problem = resource_name_problem(resource)
     if name_problem is not None:
         err_console.print(f"RESOURCE: {name_problem}", markup=False)
-        sys.exit(2)
+        sys.exit(ExitCode.BAD_INPUT)
     result = check_driver(file)
     if not result.ok:
         for problem in result.problems:
             err_console.print(str(problem), markup=False)
         err_console.print(f"{file}: {len(result.problems)} problem(s); run `sweeper driver check {file}`",
                           markup=False)
-        sys.exit(2)
+        sys.exit(ExitCode.BAD_INPUT)
     assert result.loaded is not None
     try:
         rm = open_resource_manager(backend)
     except BackendError as exc:
         err_console.print(f"--backend: {exc}", markup=False)
-        sys.exit(2)
+        sys.exit(ExitCode.BAD_INPUT)
     try:
         steps = try_driver(result.loaded, rm, resource, timeout_s=timeout_s, frequency_hz=frequency_hz)
     finally:
@@ -138,6 +139,6 @@ def try_(file: str, resource: str, backend: str, timeout_s: float | None, freque
     failed = [s.name for s in steps if s.status == "failed"]
     if any_failed(steps):
         err_console.print(f"{len(failed)} step(s) failed: {', '.join(failed)}", markup=False)
-        sys.exit(3)
+        sys.exit(ExitCode.RUN_ERROR)
     console.print("all steps passed", markup=False)
-    sys.exit(0)
+    sys.exit(ExitCode.PASS)

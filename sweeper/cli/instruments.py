@@ -10,6 +10,7 @@ import click
 
 from sweeper.cli import main
 from sweeper.cli.common import console, err_console
+from sweeper.run.outcome import ExitCode
 
 
 @main.command("instruments")
@@ -51,12 +52,12 @@ def instruments(backend: str, probes: tuple[str, ...], scan_local: str | None, l
             ports = parse_ports(scan_local)
         except ValueError as exc:
             err_console.print(f"--scan-local: {exc}", markup=False)
-            sys.exit(2)
+            sys.exit(ExitCode.BAD_INPUT)
     try:
         rm = open_resource_manager(backend)
     except BackendError as exc:
         err_console.print(f"--backend: {exc}", markup=False)
-        sys.exit(2)
+        sys.exit(ExitCode.BAD_INPUT)
     search = [Path(d) for d in driver_dirs] + driver_search_path(None)
     drivers, driver_problems = known_drivers(search)
     try:
@@ -73,7 +74,7 @@ def instruments(backend: str, probes: tuple[str, ...], scan_local: str | None, l
     if as_json:
         click.echo(json.dumps([{"resource": f.resource, "idn": f.idn, "error": f.error, "drivers": f.drivers,
                                 "driver_paths": [str(p) for p in f.driver_paths]} for f in found], indent=2))
-        sys.exit(0)
+        sys.exit(ExitCode.PASS)
     if not found:
         console.print(f"No resources found on backend {backend}."
                       + ("" if probes or ports else " Raw SCPI sockets need --probe or --scan-local."), markup=False)
@@ -88,4 +89,4 @@ def instruments(backend: str, probes: tuple[str, ...], scan_local: str | None, l
                 click.echo(f"    {f.error}")
     for line in driver_problems:
         err_console.print(f"note: {line}", markup=False)
-    sys.exit(0)
+    sys.exit(ExitCode.PASS)

@@ -23,9 +23,10 @@ from sweeper.cli.common import (
     console,
     err_console,
 )
-from sweeper.verdict import VERDICT_LABELS, VERDICT_MEANINGS
 from sweeper.measure.point import Verdict
 from sweeper.plan import format_quantity
+from sweeper.run.outcome import ExitCode
+from sweeper.verdict import VERDICT_LABELS, VERDICT_MEANINGS
 
 if TYPE_CHECKING:
     from sweeper.campaigns.production import BoardTest, ShiftSummary, Tally
@@ -126,11 +127,15 @@ def line(plan_path: str, out_dir: str, summary_out: str | None, waveforms: bool)
     'y' to be retested. Exit 0 when the shift ends normally (the verdicts are in the tally),
     3 when a run ended in an instrument or run error, 130 when interrupted.
     """
-    from sweeper.campaigns.production import SUMMARY_SUFFIXES, run_shift, write_shift_summary
+    from sweeper.campaigns.production import (
+        SUMMARY_SUFFIXES,
+        run_shift,
+        write_shift_summary,
+    )
 
     if summary_out and Path(summary_out).suffix.lower() not in SUMMARY_SUFFIXES:
         err_console.print(f"--summary-out: {summary_out!r} needs the suffix .csv or .json", markup=False)
-        sys.exit(2)
+        sys.exit(ExitCode.BAD_INPUT)
     plan, report = checked_plan_or_exit(plan_path)
     console.print(f"[bold]{plan.name}[/]  {plan.dut.board}: production line, {report.points} points per board, "
                   f"about {report.duration_text} each; runs filed in {out_dir}")
@@ -170,8 +175,8 @@ def line(plan_path: str, out_dir: str, summary_out: str | None, waveforms: bool)
             write_shift_summary(summary, summary_out)
         except OSError as exc:
             err_console.print(f"{summary_out}: cannot write the shift summary: {exc.strerror or exc}", markup=False)
-            sys.exit(3)
+            sys.exit(ExitCode.RUN_ERROR)
         console.print(f"shift summary written to {summary_out}")
     if summary.ended_by == "interrupted":
-        sys.exit(130)
-    sys.exit(3 if summary.tally.errors else 0)
+        sys.exit(ExitCode.INTERRUPTED)
+    sys.exit(ExitCode.RUN_ERROR if summary.tally.errors else ExitCode.PASS)

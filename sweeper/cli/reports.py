@@ -15,6 +15,7 @@ from sweeper.cli.common import (
     read_or_exit,
     run_paths,
 )
+from sweeper.run.outcome import ExitCode
 
 
 @main.command()
@@ -50,7 +51,7 @@ def export(run: str, runs_dir: str, fmt: str, out_path: str | None) -> None:
         export_points(frame, meta, target, fmt)
     except (ImportError, RuntimeError, ValueError) as exc:
         err_console.print(f"export: {exc}", markup=False)
-        sys.exit(2)
+        sys.exit(ExitCode.BAD_INPUT)
     summary = target.with_name(target.stem + ".summary.json")
     write_summary_json(frame, meta, summary, file_sha256=sha)
     console.print(f"points: {target}\nsummary: {summary}")

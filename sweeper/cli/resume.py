@@ -9,9 +9,9 @@ import click
 
 from sweeper.cli import main
 from sweeper.cli.common import RUNS_OPTION, console, err_console, flag_names
-from sweeper.verdict import VERDICT_LABELS
 from sweeper.measure.point import Point, Verdict
 from sweeper.plan import format_quantity
+from sweeper.verdict import VERDICT_LABELS
 
 
 @main.command()

@@ -29,9 +29,9 @@ from sweeper.cli.common import (
     err_console,
     flag_names,
 )
-from sweeper.verdict import VERDICT_LABELS, VERDICT_MEANINGS
 from sweeper.measure.point import Point, Verdict
 from sweeper.plan import format_quantity
+from sweeper.verdict import VERDICT_LABELS, VERDICT_MEANINGS
 
 
 @main.command()

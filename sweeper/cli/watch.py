@@ -8,6 +8,7 @@ import click
 
 from sweeper.cli import main
 from sweeper.cli.common import RUNS_OPTION, console, err_console
+from sweeper.run.outcome import ExitCode
 
 
 @main.command()
@@ -28,20 +29,20 @@ def watch(run: str, runs_dir: str, port: int, host: str | None) -> None:
     if source is None:
         err_console.print(f"{run}: no such journal or run file, and no single run id starting so in {runs_dir}/",
                           markup=False)
-        sys.exit(2)
+        sys.exit(ExitCode.BAD_INPUT)
     from sweeper.live.state import read_snapshot
 
     try:
         read_snapshot(source)
     except Exception as exc:  # noqa: BLE001 - an unreadable journal or run file is reported, not raised
         err_console.print(f"{source}: cannot read: {exc}", markup=False)
-        sys.exit(3)
+        sys.exit(ExitCode.RUN_ERROR)
     address = host if host is not None else "127.0.0.1"
     try:
         server = make_server(source, address, port, allow_remote=host is not None)
     except LiveError as exc:
         err_console.print(str(exc), markup=False)
-        sys.exit(2)
+        sys.exit(ExitCode.BAD_INPUT)
     if not is_loopback(address):
         err_console.print(f"warning: serving on {address}: anyone who can reach this address can see the run",
                           markup=False)
