@@ -510,10 +510,7 @@ class LoadedDriver:
 def load_driver(path: Path | str) -> LoadedDriver:
     """Read and validate one driver file; DriverFileError on any problem (located)."""
     path = Path(path)
-    try:
-        raw, text = read_text_file(path, "driver file")
-    except LocatedError as exc:
-        raise DriverFileError(exc.problems) from None
+    raw, text = read_text_file(path, "driver file", DriverFileError)
     driver = parse_driver(text, str(path))
     return LoadedDriver(driver=driver, path=path, sha256=hashlib.sha256(raw).hexdigest())
 

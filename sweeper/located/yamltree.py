@@ -34,12 +34,20 @@ _SCALAR_TAGS = {
 BOM = "\ufeff"
 
 
-def read_text_file(path: str | Path, what: str = "file") -> tuple[bytes, str]:
-    """(bytes as stored, text) of a UTF-8 file; LocatedError (located) when it cannot be read.
+def read_text_file(path: str | Path, what: str = "file",
+                   error: type[LocatedError] = LocatedError) -> tuple[bytes, str]:
+    """(bytes as stored, text) of a UTF-8 file; `error` (a LocatedError) when it cannot be read.
 
     A leading byte-order mark is kept in the text (so the text hashes like the bytes);
     `compose` skips it. what: the noun used in messages ("plan file", "driver file").
     """
+    try:
+        return _read_text_file(path, what)
+    except LocatedError as exc:
+        raise error(exc.problems) from None
+
+
+def _read_text_file(path: str | Path, what: str) -> tuple[bytes, str]:
     name = str(path)
     try:
         data = Path(path).read_bytes()

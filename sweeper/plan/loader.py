@@ -39,10 +39,7 @@ class PlanError(LocatedError):
 def load_plan(path: str | Path) -> Plan:
     """Read and validate a plan file; raises PlanError listing every problem."""
     path = Path(path)
-    try:
-        data, text = read_text_file(path, "plan file")
-    except LocatedError as exc:
-        raise PlanError(exc.problems) from None
+    data, text = read_text_file(path, "plan file", PlanError)
     plan = _load(text, str(path))
     plan._sha256 = hashlib.sha256(data).hexdigest()
     plan._path = path

@@ -11,6 +11,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from sweeper.measure.phasewrap import wrap_phase_deg
+
 
 @dataclass
 class Limits:
@@ -48,10 +50,8 @@ class Limits:
         }
 
 
-def wrap_deg(x: np.ndarray | float) -> np.ndarray:
-    """Wrap angles to (-180, 180] degrees."""
-    y = np.mod(np.asarray(x, dtype=float) + 180.0, 360.0) - 180.0
-    return np.where(y == -180.0, 180.0, y)
+#: Wrap angles to (-180, 180] degrees (the one implementation lives with the numerics).
+wrap_deg = wrap_phase_deg
 
 
 def build_limits(
