@@ -63,7 +63,7 @@ def compare(runs: tuple[str, ...], runs_dir: str, golden: str | None, at: tuple[
         drift,
         response_of,
     )
-    from sweeper.report.figures import format_hz
+    from sweeper.analysis.figures import format_hz
     from sweeper.report.plot import run_names
     from sweeper.report.runinfo import failing_mask, run_verdict_of
     from sweeper.verdict import VERDICT_LABELS

@@ -5,7 +5,7 @@ and its metadata dict, as `sweeper.store.runfile.read_run` returns them.
 """
 
 from sweeper.report.export import export_points, read_points, summary_json, write_summary_json
-from sweeper.report.figures import derived_figures
+from sweeper.analysis.figures import derived_figures
 from sweeper.report.html import render_html, write_html
 from sweeper.report.load import load_run, load_runs
 from sweeper.report.plot import bode_figure, difference_figure, overlay_figure, save_bode, save_figure

@@ -23,7 +23,7 @@ from sweeper.analysis.compare import (
 )
 from sweeper.verdict import VERDICT_LABELS
 from sweeper.report.comparison_plots import drift_figure, spread_figure
-from sweeper.report.figures import format_hz
+from sweeper.analysis.figures import format_hz
 from sweeper.report.html import CSS, esc, inline_svg
 from sweeper.report.plot import difference_figure, figure_svg, overlay_figure, run_names
 from sweeper.report.runinfo import failing_mask, run_verdict_of

@@ -12,7 +12,7 @@ from matplotlib.dates import AutoDateLocator, ConciseDateFormatter
 from matplotlib.figure import Figure
 
 from sweeper.analysis.compare import Drift, Spread
-from sweeper.report.figures import format_hz
+from sweeper.analysis.figures import format_hz
 from sweeper.report.plot import (
     FONT,
     FONT_SMALL,

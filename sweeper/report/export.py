@@ -32,7 +32,7 @@ import pandas as pd
 
 from sweeper.verdict import VERDICT_LABELS, VERDICT_MEANINGS
 from sweeper.measure.point import POINT_FIELDS, Point, units_of
-from sweeper.report.figures import FIGURE_KEYS, FIGURE_LABELS, derived_figures, figures_from_arrays
+from sweeper.analysis.figures import FIGURE_KEYS, FIGURE_LABELS, derived_figures, figures_from_arrays
 from sweeper.report.runinfo import end_time, failing_mask, prediction_of, run_status, run_verdict_of, verdict_counts
 
 EXPORT_FORMATS: tuple[str, ...] = ("csv", "json", "parquet")

@@ -27,7 +27,7 @@ from matplotlib.figure import Figure
 from sweeper.verdict import VERDICT_LABELS, VERDICT_MEANINGS, run_verdict
 from sweeper.measure.point import Verdict
 from sweeper.report.extraction import extraction_section_html
-from sweeper.report.figures import FIGURE_KEYS, FIGURE_LABELS, derived_figures, figures_from_arrays
+from sweeper.analysis.figures import FIGURE_KEYS, FIGURE_LABELS, derived_figures, figures_from_arrays
 from sweeper.report.plot import bode_figure, difference_figure, figure_png, figure_svg, overlay_figure, run_names
 from sweeper.report.html_text import esc
 from sweeper.report.runinfo import (

@@ -24,7 +24,7 @@ from scipy.interpolate import PchipInterpolator
 
 from sweeper.verdict import VERDICT_LABELS, wrap_deg
 from sweeper.measure.point import Verdict
-from sweeper.report.figures import (
+from sweeper.analysis.figures import (
     difference_to_reference,
     format_hz,
     interpolate_log_f,

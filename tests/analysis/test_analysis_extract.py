@@ -30,7 +30,7 @@ from sweeper.analysis.extract import (
 )
 from sweeper.circuits import Loading
 from sweeper.plan import load_plan
-from sweeper.report.figures import derived_figures
+from sweeper.analysis.figures import derived_figures
 from sweeper.run.runner import execute_run
 from sweeper.store.runfile import read_run
 

@@ -139,7 +139,7 @@ def test_single_run_page(failing_run, tmp_path) -> None:
     assert software["numpy"] == np.__version__
 
     # Derived figures: measured -3 dB frequency near the handbook 994.7 Hz (noise 0.003 dB
-    # and 60-point interpolation: 1 % is ample, see test_report_figures).
+    # and 60-point interpolation: 1 % is ample, see test_analysis_figures).
     f3 = page.row("figures", "-3 dB frequency")
     assert float(f3[1]) == pytest.approx(994.7, rel=0.01)
 

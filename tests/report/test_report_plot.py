@@ -79,7 +79,7 @@ def test_corner_annotated_at_handbook_frequency(passing_run) -> None:
     assert len(vertical) == 1
     x = vertical[0].get_xdata()[0]
     # Found on the model curve drawn through 60 points (0.068 decade apart): the linear-
-    # interpolation bound is 0.31 % (see test_report_figures); 1 % is the accuracy a marker
+    # interpolation bound is 0.31 % (see test_analysis_figures); 1 % is the accuracy a marker
     # on a log axis needs.
     assert x == pytest.approx(FC_HZ, rel=0.01)
     assert any("corner" in t.get_text() for t in ax_gain.texts)
@@ -128,7 +128,7 @@ def test_overlay_and_difference(run_factory) -> None:
     assert set(by_run) == {"DLF7-000201", "DLF7-000202"}
     # Same model, different sampling: the golden's values, interpolated linearly in log f,
     # err by at most h^2/8 * 23.0 dB/decade^2 = 0.0132 dB (h = 0.0678 decade; see
-    # test_report_figures), so the differences stay within that.
+    # test_analysis_figures), so the differences stay within that.
     assert np.nanmax(np.abs(by_run["DLF7-000201"])) <= 0.0133
     # +0.5 dB on every point, same frequencies: exactly 0.5 dB up to rounding.
     np.testing.assert_allclose(by_run["DLF7-000202"], 0.5, atol=1e-9)

@@ -1,4 +1,4 @@
-"""Derived figures from measured points (sweeper.report.figures).
+"""Derived figures from measured points (sweeper.analysis.figures).
 
 Outside references:
 * Circuit handbook, first-order RC low-pass H = 1/(1 + j w R C): corner fc = 1/(2 pi R C),
@@ -19,7 +19,7 @@ import pandas as pd
 import pytest
 from scipy import signal
 
-from sweeper.report.figures import (
+from sweeper.analysis.figures import (
     HALF_POWER_DB,
     derived_figures,
     difference_to_reference,
