@@ -47,8 +47,9 @@ class ParseSpec:
     """How to read one query's answer.
 
     kind: 'text' | 'float' | 'int' | 'floats' (comma-separated numbers) | 'ints' (comma-separated
-    integers) | 'block' (IEEE 488.2 definite-length block of samples) | 'fields' (a comma list whose
-    items are stored under the given names, as numbers when they read as numbers).
+    integers) | 'block' (IEEE 488.2 definite-length block of samples) | 'fields' (a list separated by
+    ',' or, for the answer of a compound query, ';', whose items are stored under the given names,
+    as numbers when they read as numbers).
     """
 
     kind: str = "text"

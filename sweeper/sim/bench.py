@@ -51,7 +51,7 @@ class SimConfig:
 class GeneratorSettings:
     """The function generator's state as its front panel shows it."""
 
-    function: str = "SIN"
+    function: str = "SINE"
     frequency_hz: float = 1e3
     amplitude_vpp: float = 0.1  # as displayed for the load setting
     offset_v: float = 0.0  # as displayed for the load setting
@@ -132,19 +132,21 @@ class SimBench:
         key = zlib.crc32(name.encode("utf-8"))
         return np.random.default_rng(np.random.SeedSequence(entropy=self.config.seed, spawn_key=(key,)))
 
-    def acquisition_rng(self, name: str) -> np.random.Generator:
-        """The random stream of one acquisition by consumer `name` (trigger phase, noise).
+    def acquisition_rng(self, stream: int) -> np.random.Generator:
+        """The random stream of one acquisition by one instrument (trigger phase, noise).
 
-        It depends only on config.seed, the name, the generator's frequency (its bits) and how
-        many acquisitions were made since that frequency was set, never on what the bench did
-        before: a bench reopened mid-sweep (a resumed run) draws exactly what an uninterrupted
-        one draws at the same point.
+        stream: the instrument's fixed 32-bit stream key (each simulated instrument has its
+        own; changing one changes every seeded draw of that instrument).
+        The draws depend only on config.seed, the stream, the generator's frequency (its bits)
+        and how many acquisitions were made since that frequency was set, never on what the
+        bench did before: a bench reopened mid-sweep (a resumed run) draws exactly what an
+        uninterrupted one draws at the same point.
         """
         frequency_hz = float(self.generator.frequency_hz)
         count = self._draws[1] + 1 if self._draws[0] == frequency_hz else 0
         self._draws = (frequency_hz, count)
         bits = int(np.float64(frequency_hz).view(np.uint64))
-        key = [self.config.seed, zlib.crc32(name.encode("utf-8")), bits & 0xFFFFFFFF, bits >> 32, count]
+        key = [self.config.seed, stream, bits & 0xFFFFFFFF, bits >> 32, count]
         return np.random.default_rng(np.random.SeedSequence(key))
 
     # --- the one place every message passes

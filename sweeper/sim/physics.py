@@ -23,7 +23,7 @@ from typing import Protocol
 
 import numpy as np
 
-SOURCE_RESISTANCE_OHM = 50.0  # generator's internal source resistance (DIALECTS.md, FG-1)
+SOURCE_RESISTANCE_OHM = 50.0  # generator's internal source resistance (DIALECTS.md, STIM-1)
 DISTORTION_HARMONICS = (2, 3)  # harmonic orders added when distortion is on
 _DC_FALLBACK_HZ = 1e-9  # stands in for 0 Hz when a model cannot be evaluated at exactly DC
 

@@ -58,7 +58,7 @@ def test_instruments_probe_prints_a_table_and_reports_silence(served, tmp_path: 
     code, out, err = sweeper_in_process("instruments", "--no-list", "--probe", served.resources["meter"],
                                         "--probe", silent, "--timeout", "0.5")
     assert code == 0, err
-    assert "Sweeper Sim,GPM-1" in out and "sim-meter.yaml" in out
+    assert "Sweeper Sim,RATIO-1" in out and "sim-meter.yaml" in out
     assert re.search(r"cannot open|no answer", out)
 
 
@@ -177,7 +177,7 @@ def test_bench_serve_command_serves_until_terminated(tmp_path: Path) -> None:
         try:
             gen = rm.open_resource(resources["generator"], read_termination="\n", write_termination="\n",
                                    timeout=2000)
-            assert gen.query("*IDN?").startswith("Sweeper Sim,FG-1,")
+            assert gen.query("*IDN?").startswith("Sweeper Sim,STIM-1,")
         finally:
             rm.close()
         proc.send_signal(signal.SIGTERM)

@@ -92,14 +92,14 @@ def test_resume_refuses_other_instruments(tmp_path: Path) -> None:
     outcome = interrupted_run(tmp_path)
 
     def other_scope(meta: dict) -> None:
-        meta["instruments"][1]["idn"] = "Sweeper Sim,DSO-A2,SIM-DSOA-9999,1.0"
+        meta["instruments"][1]["idn"] = "Sweeper Sim,CAP-2A,SIM-CA-9999,1.0"
 
     journal = rewritten(outcome.journal_path, other_scope)
     before = journal.read_bytes()
     result = resume(str(journal))
     assert result.exit_code == 3
     assert "not the bench this run started on" in result.output
-    assert "SIM-DSOA-9999" in result.output and "scope (TCPIP0::sim-scope-a::5025::SOCKET)" in result.output
+    assert "SIM-CA-9999" in result.output and "scope (TCPIP0::sim-scope-a::5025::SOCKET)" in result.output
     assert journal.read_bytes() == before  # nothing was written
 
 
