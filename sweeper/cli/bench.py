@@ -15,7 +15,7 @@ from sweeper.cli.common import err_console, load_plan_or_exit
 FAULT_HELP = (
     "Inject a network fault: KIND:INSTRUMENT[:TEXT], KIND one of drop, stall[=SECONDS], cut[=FRACTION], "
     "trickle[=BYTES]; it fires once, on the next message to INSTRUMENT containing TEXT "
-    "(e.g. 'stall=5:scope-a:WAV:DATA?'). Repeatable."
+    "(e.g. 'stall=5:scope-a:BLOC?'). Repeatable."
 )
 
 

@@ -28,7 +28,7 @@ SCALES_V_PER_DIV = steps_125(1e-3, 10.0, R10)  # fine vertical steps (ISO 3 seri
 SAMPLE_RATES_HZ = steps_125(1e3, 1e9)
 POINTS_MIN, POINTS_MAX = 1000, 1_000_000
 CENTRE_MAX_V = 50.0
-WORD_COUNTS_PER_CODE = 256  # 16-bit width: the 8-bit code sits in the high byte
+COUNTS_PER_CODE_16 = 256  # 16-bit width: the 8-bit code sits in the high byte
 LANE = "LANE<n>"  # how a channel is named as a parameter (LANE1, LANE2)
 
 #: This scope's random stream (SimBench.acquisition_rng); fixed, so seeded draws stay as they were.
@@ -112,7 +112,7 @@ class ScopeA(TwoChannelScope):
         self._no_params(params)
         ch = self._ch(suffixes)
         lsb = DIVISIONS * self.scale_v[ch] / ADC_CODES
-        volts_per_count = lsb / WORD_COUNTS_PER_CODE if self.width_bits == 16 else lsb
+        volts_per_count = lsb / COUNTS_PER_CODE_16 if self.width_bits == 16 else lsb
         fields = [
             str(self.points),
             format_number(1.0 / self.sample_rate_hz),
@@ -132,7 +132,7 @@ class ScopeA(TwoChannelScope):
             return b"#10"
         codes = capture.codes[ch]
         if self.width_bits == 16:
-            payload = (codes.astype("<i2") * WORD_COUNTS_PER_CODE).astype("<i2").tobytes()
+            payload = (codes.astype("<i2") * COUNTS_PER_CODE_16).astype("<i2").tobytes()
         else:
             payload = codes.astype(np.int8).tobytes()
         length = str(len(payload)).encode("ascii")
