@@ -298,7 +298,7 @@ def _resume(plan, journal, contents, meta, outcome, freqs, limits, settings, inj
     opened = None
     write_failed = False
     try:
-        with open_bench(plan, transcript=transcript, sim_faults=injector) as bench:
+        with open_bench(plan, transcript=transcript, sim_faults=injector, run_metadata=meta) as bench:
             opened = bench
             try:
                 instruments, drivers = identity_problems(meta.get("instruments") or [], bench.identities)

@@ -193,7 +193,7 @@ def execute_run(
     opened = None
     write_failed = False
     try:
-        with open_bench(plan, transcript=transcript, sim_faults=injector) as bench:
+        with open_bench(plan, transcript=transcript, sim_faults=injector, run_metadata=meta) as bench:
             opened = bench
             try:
                 meta["instruments"] = [asdict(i) for i in bench.identities]

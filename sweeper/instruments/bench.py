@@ -8,7 +8,7 @@ session.
 
 from __future__ import annotations
 
-from collections.abc import Iterable
+from collections.abc import Iterable, Mapping
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -162,12 +162,24 @@ def sim_circuit(plan: Any) -> Any:
     return true_circuit(plan, reference="input")
 
 
-def sim_config(plan: Any, faults: object | None = None) -> Any:
+def sim_config(plan: Any, faults: object | None = None, run_metadata: Mapping[str, Any] | None = None) -> Any:
     """The sweeper.sim SimConfig of a plan's simulated DUT: sim_circuit(plan) and bench.simulation
-    (also what `sweeper bench serve` serves)."""
-    from sweeper.sim import SimConfig
+    (also what `sweeper bench serve` serves).
+
+    run_metadata: the run's stored metadata, when the bench is opened for a run. A campaign's
+    sweep number (`campaign_sweep`) becomes the simulator's sweep seed, so the sweeps of a
+    campaign differ, and its start on the campaign clock (`campaign_offset_s`) the bench's age,
+    so drift goes on from sweep to sweep; both are stored in the run, so a resumed run opens
+    the same bench. Without them (a single run) the bench is today's: sweep seed 0, age 0 s.
+    """
+    from sweeper.sim import Drift, Probe, SimConfig
 
     simulation = plan.bench.simulation
+    meta = run_metadata or {}
+    probes = None
+    if simulation.probes is not None:
+        probes = tuple(Probe(p.attenuation, p.resistance_ohm, p.capacitance_f) for p in simulation.probes)
+    drift = None if simulation.drift is None else Drift(**simulation.drift.model_dump())
     return SimConfig(
         circuit=sim_circuit(plan),
         noise_v=simulation.noise_v,
@@ -177,6 +189,13 @@ def sim_config(plan: Any, faults: object | None = None) -> Any:
         realtime=simulation.realtime,
         faults=faults,
         transient=simulation.transient,
+        probes=probes,
+        channel_gain_db=tuple(simulation.channel_gain_db),
+        channel_phase_deg=tuple(simulation.channel_phase_deg),
+        skew_s=simulation.skew_s,
+        drift=drift,
+        bench_age_s=float(meta.get("campaign_offset_s") or 0.0),
+        sweep_seed=int(meta.get("campaign_sweep") or 0),
     )
 
 
@@ -187,6 +206,7 @@ def open_bench(
     transcript: Observer | None = None,
     fault_hook: FaultHook | None = None,
     sim_faults: object | None = None,
+    run_metadata: Mapping[str, Any] | None = None,
 ) -> Bench:
     """Open the plan's bench (a context manager: leaving it switches the output off and closes).
 
@@ -195,6 +215,7 @@ def open_bench(
     transcript: observer(time_utc, role, command, answer, duration_s, error) for every transaction.
     fault_hook: fault_hook(role, command), called before every transaction; may raise.
     sim_faults: a sweeper.sim fault hook (e.g. FaultPlan) for a simulated bench.
+    run_metadata: the run's stored metadata, for a simulated bench's sweep seed and age (sim_config).
     Raises BenchError (a driver file missing, invalid or of the wrong role; a visa bench
     without an instrument it needs) before any session opens, or InstrumentError.
     """
@@ -210,7 +231,7 @@ def open_bench(
             raise BenchError("a simulated bench runs on its own simulated clock: do not pass clock=")
         from sweeper.sim import open_sim_resource_manager
 
-        rm, sim = open_sim_resource_manager(sim_config(plan, sim_faults))
+        rm, sim = open_sim_resource_manager(sim_config(plan, sim_faults, run_metadata))
         bench_clock: Clock = sim.clock
     elif bench_spec.kind == "visa":
         if sim_faults is not None:
