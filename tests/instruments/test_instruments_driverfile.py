@@ -42,7 +42,7 @@ scope:
     arm: [{write: "RUN"}, {query: "*OPC?", expect: "1"}]
     fetch: [{query: "DATA? {channel}", parse: ints, store: codes}]
     scaling:
-      - query: "PRE? {channel}"
+      - query: "LEG? {channel}"
         parse: {fields: [x_increment, y_increment, y_origin, y_reference]}
 """
 

@@ -18,9 +18,8 @@ from scipy import signal
 from sim_rig import amplitude_sigma_v, divider, fit_phasor, fit_sine
 
 from sweeper.circuits import Loading, build_circuit
-from sweeper.plan import load_plan_text
-from sweeper.plan.loader import PlanError
 from sweeper.instruments.bench import sim_config
+from sweeper.plan import PlanError, load_plan_text
 from sweeper.sim import Drift, Probe
 
 NOISE_V = 10e-3  # V rms: dither for the 8-bit quantiser
