@@ -5,8 +5,8 @@ Run:  /tmp/venv/bin/python bench/bench_transfer.py [--repeats 5]
 Scope A of the simulated bench is served on 127.0.0.1 (sweeper.sim.serve) and read through
 pyvisa-py with sweeper's Link.query_block (IEEE 488.2 definite-length block, read raw so LF
 bytes inside the data do not end it), using the chunk size of drivers/sim-scope-a.yaml. For
-each record length the acquisition (`:SING;*OPC?`, the simulator computing and quantising the
-record) is timed apart from the transfer (`:WAV:DATA?`: the server building the block, the
+each record length the acquisition (`CAPT:TAKE;*OPC?`, the simulator computing and quantising the
+record) is timed apart from the transfer (`LANE1:BLOC?`: the server building the block, the
 socket, pyvisa-py's reads, the block parser), and every transfer is checked against the
 server's own codes with numpy. The same transfers on the pyvisa-sim bench (its fast read
 path, no socket) are shown for comparison. Throughput is payload bytes / transfer time, in
@@ -32,6 +32,7 @@ from sweeper.sim.serve import serve_bench
 
 RECORDS = (10_000, 100_000, 1_000_000)
 TERM = {"read_termination": "\n", "write_termination": "\n"}
+WIDTH_BITS = {"int16": 16, "int8": 8}  # the scope's CAPTure:WIDTh for each sample format
 
 
 def config() -> SimConfig:
@@ -42,21 +43,21 @@ def config() -> SimConfig:
 
 def time_transfers(gen, scope_link: Link, scope_model_codes, fmt: str, points: int, repeats: int) -> dict[str, float]:
     """Median acquisition and transfer times (s) for one format and record length; checks every block."""
-    scope_link.write(f":CHAN1:SCAL 0.5;:ACQ:SRAT 1e6;:ACQ:POIN {points};:WAV:FORM {fmt};:WAV:SOUR CHAN1")
+    scope_link.write(f"LANE1:DIV 0.5;CAPT:RATE 1e6;CAPT:LENG {points};CAPT:WIDT {WIDTH_BITS[fmt]}")
     acquire, transfer = [], []
     for _ in range(repeats):
         start = time.perf_counter()
-        assert scope_link.query(":SING;*OPC?") == "1"
+        assert scope_link.query("CAPT:TAKE;*OPC?") == "1"
         acquire.append(time.perf_counter() - start)
         start = time.perf_counter()
-        payload = scope_link.query_block(":WAV:DATA?")
+        payload = scope_link.query_block("LANE1:BLOC?")
         transfer.append(time.perf_counter() - start)
         sent = scope_model_codes()
-        received = np.frombuffer(payload, dtype="<i2" if fmt == "WORD" else "i1")
-        expected = sent.astype("<i2") * 256 if fmt == "WORD" else sent.astype("i1")
+        received = np.frombuffer(payload, dtype="<i2" if fmt == "int16" else "i1")
+        expected = sent.astype("<i2") * 256 if fmt == "int16" else sent.astype("i1")
         if not np.array_equal(received, expected):
             raise SystemExit(f"block of {points} {fmt} samples arrived damaged")
-    size = points * (2 if fmt == "WORD" else 1)
+    size = points * (2 if fmt == "int16" else 1)
     t = statistics.median(transfer)
     return {"bytes": size, "acquire_s": statistics.median(acquire), "transfer_s": t, "mb_s": size / t / 1e6}
 
@@ -64,15 +65,15 @@ def time_transfers(gen, scope_link: Link, scope_model_codes, fmt: str, points: i
 def run_bench(rm, generator: str, scope: str, codes, repeats: int, chunk_size: int) -> list[tuple]:
     gen = rm.open_resource(generator, timeout=10_000, **TERM)
     disable_nagle(gen)
-    gen.write("SOUR:VOLT 2;SOUR:FREQ 1000;OUTP ON")
+    gen.write("STIM:SWIN 2;STIM:TONE 1000;DRIV:ENAB ON")
     resource = rm.open_resource(scope, timeout=60_000, chunk_size=chunk_size, **TERM)
     disable_nagle(resource)
     link = Link(resource, "scope")
     rows = []
-    for fmt in ("WORD", "BYTE"):
+    for fmt in ("int16", "int8"):
         for points in RECORDS:
             rows.append((fmt, points, time_transfers(gen, link, codes, fmt, points, repeats)))
-    gen.write("OUTP OFF")
+    gen.write("DRIV:ENAB OFF")
     return rows
 
 

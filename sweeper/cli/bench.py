@@ -16,7 +16,7 @@ from sweeper.run.outcome import ExitCode
 FAULT_HELP = (
     "Inject a network fault: KIND:INSTRUMENT[:TEXT], KIND one of drop, stall[=SECONDS], cut[=FRACTION], "
     "trickle[=BYTES]; it fires once, on the next message to INSTRUMENT containing TEXT "
-    "(e.g. 'stall=5:scope-a:WAV:DATA?'). Repeatable."
+    "(e.g. 'stall=5:scope-a:BLOC?'). Repeatable."
 )
 
 

@@ -20,22 +20,26 @@ from sweeper.run.outcome import ExitCode
               help="Also ask this resource (e.g. TCPIP0::192.168.0.20::5025::SOCKET). Repeatable.")
 @click.option("--scan-local", "scan_local", default=None, metavar="PORTS",
               help="Try TCPIP0::127.0.0.1::<port>::SOCKET for listening ports, e.g. 5025-5028.")
-@click.option("--list/--no-list", "list_backend", default=True, show_default=True,
-              help="Ask the backend's own discovery (pyvisa-py's sends VXI-11 broadcasts on the LAN).")
+@click.option("--lan", "lan", is_flag=True,
+              help="Also ask the backend's own discovery, which for @py (pyvisa-py) and system VISA "
+                   "libraries sends VXI-11 broadcasts and mDNS queries on the LAN. Without it nothing is "
+                   "sent beyond this machine's loopback (the @sim backend lists its instruments anyway).")
 @click.option("--timeout", "timeout_s", type=click.FloatRange(min=0.001), default=1.0, show_default=True,
               help="*IDN? timeout per resource, s.")
 @click.option("--drivers", "driver_dirs", multiple=True, type=click.Path(file_okay=False),
               help="Also look for driver files in this folder (searched first). Repeatable.")
 @click.option("--json", "as_json", is_flag=True, help="Print the findings as JSON.")
-def instruments(backend: str, probes: tuple[str, ...], scan_local: str | None, list_backend: bool,
+def instruments(backend: str, probes: tuple[str, ...], scan_local: str | None, lan: bool,
                 timeout_s: float, driver_dirs: tuple[str, ...], as_json: bool) -> None:
     """List the instruments a VISA backend can reach, their identities and matching driver files.
 
     Raw SCPI sockets announce themselves nowhere, so name them with --probe or find local ones
-    with --scan-local. Exit 0 when the listing ran (even if nothing answered).
+    with --scan-local. LAN discovery (broadcasts) happens only with --lan. Exit 0 when the
+    listing ran (even if nothing answered).
     """
     from sweeper.instruments.discovery import (
         BackendError,
+        backend_listing_allowed,
         discover,
         known_drivers,
         list_backend_resources,
@@ -61,7 +65,7 @@ def instruments(backend: str, probes: tuple[str, ...], scan_local: str | None, l
     search = [Path(d) for d in driver_dirs] + driver_search_path(None)
     drivers, driver_problems = known_drivers(search)
     try:
-        resources = list(list_backend_resources(rm)) if list_backend else []
+        resources = list(list_backend_resources(rm)) if backend_listing_allowed(backend, lan) else []
         resources += list(probes)
         if ports:
             resources += socket_resources(listening_ports(ports))
@@ -76,8 +80,10 @@ def instruments(backend: str, probes: tuple[str, ...], scan_local: str | None, l
                                 "driver_paths": [str(p) for p in f.driver_paths]} for f in found], indent=2))
         sys.exit(ExitCode.PASS)
     if not found:
-        console.print(f"No resources found on backend {backend}."
-                      + ("" if probes or ports else " Raw SCPI sockets need --probe or --scan-local."), markup=False)
+        hint = "" if probes or ports else " Raw SCPI sockets need --probe or --scan-local."
+        if not backend_listing_allowed(backend, lan):
+            hint += " --lan also asks the backend's own discovery (LAN broadcasts)."
+        console.print(f"No resources found on backend {backend}.{hint}", markup=False)
     else:
         click.echo(f"{len(found)} resource(s) on backend {backend}:")
         for f in found:

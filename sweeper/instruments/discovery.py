@@ -4,6 +4,12 @@ Backends: "@py" (pyvisa-py, the default), "@sim" (sweeper's simulated bench, wit
 or anything else pyvisa.ResourceManager takes (a path to a system VISA library, "@ivi").
 pyvisa-py's own listing cannot see raw SCPI sockets (nothing announces them), so resources can
 also be given by hand or found by trying ports of the local host.
+
+Nothing leaves the machine unless asked for: a real backend's own listing (pyvisa-py sends
+VXI-11 broadcasts and mDNS queries on the LAN to find TCPIP instruments, and a system VISA
+library may do the like) runs only with lan=True (`sweeper instruments --lan`); by default
+only the resources named by hand and the loopback ports tried are asked. The "@sim" backend
+lists its simulated instruments in-process, sending nothing.
 """
 
 from __future__ import annotations
@@ -72,6 +78,16 @@ def open_resource_manager(backend: str = "@py") -> Any:
         return pyvisa.ResourceManager(backend)
     except Exception as exc:  # noqa: BLE001 - any loading failure is reported the same way
         raise BackendError(f"cannot load the VISA library {backend!r}: {exc}") from exc
+
+
+#: Backends whose own listing sends nothing over a network (they are listed without --lan).
+LOCAL_BACKENDS = frozenset({"@sim"})
+
+
+def backend_listing_allowed(backend: str, lan: bool) -> bool:
+    """Whether to ask the backend's own discovery: always for a backend that lists in-process
+    ("@sim"), else only when LAN discovery was asked for (it may broadcast on the LAN)."""
+    return lan or (backend or "@py").strip() in LOCAL_BACKENDS
 
 
 def list_backend_resources(rm: Any, query: str = "?*") -> list[str]:
@@ -216,8 +232,10 @@ def discover(
 
 
 __all__ = [
+    "LOCAL_BACKENDS",
     "PROBE_TIMEOUT_S",
     "BackendError",
+    "backend_listing_allowed",
     "Found",
     "discover",
     "known_drivers",

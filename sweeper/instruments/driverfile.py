@@ -57,8 +57,9 @@ class ParseSpec:
     """How to read one query's answer.
 
     kind: 'text' | 'float' | 'int' | 'floats' (comma-separated numbers) | 'ints' (comma-separated
-    integers) | 'block' (IEEE 488.2 definite-length block of samples) | 'fields' (a comma list whose
-    items are stored under the given names, as numbers when they read as numbers).
+    integers) | 'block' (IEEE 488.2 definite-length block of samples) | 'fields' (a list separated by
+    ',' or, for the answer of a compound query, ';', whose items are stored under the given names,
+    as numbers when they read as numbers).
     """
 
     kind: str = "text"
@@ -516,15 +517,20 @@ def load_driver(path: Path | str) -> LoadedDriver:
 
 
 def repository_drivers_dir() -> Path:
-    """The drivers/ folder shipped with the repository."""
+    """The demo driver files shipped with sweeper: the copy installed inside the package
+    (sweeper/drivers, from a wheel), else the drivers/ folder of the source checkout the package
+    runs from (a clone or an editable install)."""
     import sweeper
 
-    return Path(sweeper.__file__).resolve().parents[1] / "drivers"
+    package_dir = Path(sweeper.__file__).resolve().parent
+    installed = package_dir / "drivers"
+    return installed if installed.is_dir() else package_dir.parent / "drivers"
 
 
 def driver_search_path(plan_path: Path | None = None) -> list[Path]:
     """Folders searched for a driver file, in order: the plan's folder, its ../drivers, ./drivers,
-    the repository's drivers/, then each folder in the SWEEPER_DRIVERS environment variable."""
+    the shipped demo drivers (repository_drivers_dir), then each folder in the SWEEPER_DRIVERS
+    environment variable."""
     folders: list[Path] = []
     if plan_path is not None:
         plan_dir = Path(plan_path).resolve().parent

@@ -8,6 +8,7 @@ answer parsed by the step's parser into named results.
 from __future__ import annotations
 
 import math
+import re
 from collections.abc import Mapping
 from typing import Any
 
@@ -73,9 +74,11 @@ def parse_answer(spec: ParseSpec, answer: str | bytes) -> Any:
     if spec.kind == "ints":
         return parse_integers(text)
     if spec.kind == "fields":
-        items = [item.strip() for item in text.split(",")]
+        # Data elements of one response unit are separated by ',', the units of a compound
+        # query's response by ';' (IEEE 488.2): either way each item is one field.
+        items = [item.strip() for item in re.split(r"[,;]", text)]
         if len(items) != len(spec.fields):
-            raise ValueError(f"answer has {len(items)} comma-separated fields, expected {len(spec.fields)} "
+            raise ValueError(f"answer has {len(items)} fields (separated by ',' or ';'), expected {len(spec.fields)} "
                              f"({', '.join(spec.fields)})")
         values: dict[str, Any] = {}
         for name, item in zip(spec.fields, items):

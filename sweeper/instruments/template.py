@@ -1,8 +1,8 @@
 """Safe substitution for driver-file command templates.
 
-A template is SCPI text with placeholders: ``":CHAN{channel}:SCAL {volts_per_div}"``.
+A template is SCPI text with placeholders: ``"LANE{channel}:DIV {volts_per_div}"``.
 A placeholder is ``{name}`` with name an identifier; ``{{`` and ``}}`` stand for literal
-braces. Values come from a dict of numbers and plain tokens (enum words such as ``INF``).
+braces. Values come from a dict of numbers and plain tokens (enum words such as ``HIZ``).
 The template text is scanned by the small parser below: it is never handed to ``eval`` or
 ``str.format``, so a hostile driver file can only produce an error, never run code.
 """

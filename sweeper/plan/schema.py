@@ -196,6 +196,25 @@ class InstrumentRef(_Section):
     timeout_s: Annotated[TimeS, _above(0.0, "time")] = Field(5.0, alias="timeout")
 
 
+class SimProbe(_Section):
+    """A probe of the simulated bench's own (sweeper.sim.probes): its R and C load the DUT node it
+    touches; its attenuation is compensated by the scope, leaving the scope's noise times it."""
+
+    attenuation: Annotated[Float, _above(1.0, inclusive=True)] = 1.0  # 1 (1x) or 10 (10x)
+    resistance_ohm: Annotated[ResistanceOhm, _above(0.0, "resistance")] = Field(alias="resistance")
+    capacitance_f: Annotated[CapacitanceF, _above(0.0, "capacitance", inclusive=True)] = Field(0.0, alias="capacitance")
+
+
+class SimDrift(_Section):
+    """Slow drift of the simulated DUT with bench time (sweeper.sim.drift): warm-up plus a linear drift."""
+
+    warmup_frac: Fraction = Field(0.0, alias="warmup")  # gain change once warm, e.g. '0.2 %'
+    warmup_time_s: Annotated[TimeS, _above(0.0, "time", inclusive=True)] = Field(0.0, alias="warmup_time")
+    per_hour_frac: Fraction = Field(0.0, alias="per_hour")  # gain drift per hour
+    warmup_phase_deg: AngleDeg = Field(0.0, alias="warmup_phase")
+    phase_per_hour_deg: AngleDeg = Field(0.0, alias="phase_per_hour")
+
+
 class Simulation(_Section):
     """Settings of the simulated bench (used when bench.kind is 'simulated')."""
 
@@ -212,6 +231,12 @@ class Simulation(_Section):
     realtime: bool = False
     transient: bool = True  # the DUT's transient after each generator change (see sweeper.sim.bench)
     faults: list[Injection] = Field(default_factory=list)  # faults to inject (sweeper.plan.faults)
+    # What a real bench adds; the defaults are the ideal bench (sweeper.sim.bench).
+    channel_gain_db: tuple[GainDb, GainDb] = Field((0.0, 0.0), alias="channel_gain")  # per scope channel
+    channel_phase_deg: tuple[AngleDeg, AngleDeg] = Field((0.0, 0.0), alias="channel_phase")
+    skew_s: Annotated[TimeS, AfterValidator(_finite)] = Field(0.0, alias="skew")  # channel 2 lags channel 1
+    probes: tuple[SimProbe, SimProbe] | None = None  # the bench's own probes, channel 1 then channel 2
+    drift: SimDrift | None = None
 
 
 class Bench(_Section):

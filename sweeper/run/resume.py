@@ -36,7 +36,7 @@ from sweeper.plan import PlanError, load_plan_text
 from sweeper.run.outcome import EXIT_BAD_INPUT, EXIT_RUN_ERROR, RunOutcome
 from sweeper.run.recovery import engine_state_from_points, reapply
 from sweeper.run.session import file_in_catalog, finish_run, run_on_bench
-from sweeper.run.spec import RunSpec, run_spec
+from sweeper.run.spec import RunSpec, bench_for_run, run_spec
 from sweeper.run.supervise import Supervisor
 from sweeper.run.transcript import Transcript, transcript_path
 from sweeper.store.journal import Journal, JournalContents, JournalError
@@ -310,7 +310,8 @@ def _resume(spec: RunSpec, journal: Journal, contents: JournalContents, meta: di
         reapply(supervisor.instruments, spec.settings, state)
         supervisor.run(resumed_at, state)
 
-    write_failed = run_on_bench(outcome, spec.bench, transcript, injector, measure, passthrough=(ResumeRefused,))
+    write_failed = run_on_bench(outcome, bench_for_run(spec.bench, meta), transcript, injector, measure,
+                                passthrough=(ResumeRefused,))
     if not interruption:  # the bench never opened: nothing was resumed, the journal is as it was
         journal.close()
         return ResumeOutcome(outcome, resumed_at)

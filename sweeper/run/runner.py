@@ -25,7 +25,7 @@ from sweeper.measure.point import Point, Verdict
 from sweeper.measure.settings import EngineState, Instruments
 from sweeper.run.outcome import RunOutcome
 from sweeper.run.session import finish_run, run_on_bench
-from sweeper.run.spec import RunSpec, run_metadata, run_spec
+from sweeper.run.spec import RunSpec, bench_for_run, run_metadata, run_spec
 from sweeper.run.supervise import Supervisor, estimate_run_bytes, space_problem
 from sweeper.run.transcript import Transcript, transcript_path
 from sweeper.store.journal import Journal
@@ -132,7 +132,7 @@ def execute_spec(
         prepare_source(bench.source, spec.settings)
         supervisor.run(0, EngineState())
 
-    write_failed = run_on_bench(outcome, spec.bench, transcript, injector, measure)
+    write_failed = run_on_bench(outcome, bench_for_run(spec.bench, meta), transcript, injector, measure)
     outcome.points = points
     supervisor = opened.get("supervisor")
     finish_run(outcome, opened.get("journal"), opened.get("writer"), len(freqs),

@@ -9,7 +9,8 @@ from __future__ import annotations
 
 import platform
 import socket
-from dataclasses import dataclass
+from collections.abc import Mapping
+from dataclasses import dataclass, replace
 from datetime import datetime
 from typing import TYPE_CHECKING, Any
 
@@ -70,9 +71,13 @@ def sim_config(plan: Plan, faults: object | None = None) -> SimConfig:
     part values of bench.simulation.components, under the plan's loading, referenced to the DUT
     input node (the simulator adds its generator's own source resistance); also what
     `sweeper bench serve` serves."""
-    from sweeper.sim import SimConfig
+    from sweeper.sim import Drift, Probe, SimConfig
 
     simulation = plan.bench.simulation
+    probes = None
+    if simulation.probes is not None:
+        probes = tuple(Probe(p.attenuation, p.resistance_ohm, p.capacitance_f) for p in simulation.probes)
+    drift = None if simulation.drift is None else Drift(**simulation.drift.model_dump())
     return SimConfig(
         circuit=true_circuit(plan.model, simulation.components, reference="input"),
         noise_v=simulation.noise_v,
@@ -82,7 +87,25 @@ def sim_config(plan: Plan, faults: object | None = None) -> SimConfig:
         realtime=simulation.realtime,
         faults=faults,
         transient=simulation.transient,
+        probes=probes,
+        channel_gain_db=tuple(simulation.channel_gain_db),
+        channel_phase_deg=tuple(simulation.channel_phase_deg),
+        skew_s=simulation.skew_s,
+        drift=drift,
     )
+
+
+def bench_for_run(bench: BenchSpec, run_metadata: Mapping[str, Any]) -> BenchSpec:
+    """The bench as opened for one run, from the run's stored metadata: on a simulated bench a
+    campaign's sweep number (`campaign_sweep`) becomes the simulator's sweep seed, so the sweeps
+    of a campaign differ, and its start on the campaign clock (`campaign_offset_s`) the bench's
+    age, so drift goes on from sweep to sweep. Both are stored in the run, so a resumed run opens
+    the same bench; a single run gets sweep seed 0 and age 0 s."""
+    if bench.sim is None:
+        return bench
+    sim = replace(bench.sim, bench_age_s=float(run_metadata.get("campaign_offset_s") or 0.0),
+                  sweep_seed=int(run_metadata.get("campaign_sweep") or 0))
+    return replace(bench, sim=sim)
 
 
 def bench_spec(plan: Plan) -> BenchSpec:
@@ -210,6 +233,7 @@ def run_metadata(spec: RunSpec, run_id: str, start: datetime, campaign: str | No
 
 __all__ = [
     "RunSpec",
+    "bench_for_run",
     "bench_spec",
     "engine_settings",
     "plan_frequencies",

@@ -12,8 +12,10 @@ resource. Dialects: DIALECTS.md.
 
 from sweeper.sim.bench import GeneratorSettings, SimBench, SimConfig
 from sweeper.sim.clock import SimClock
+from sweeper.sim.drift import Drift
 from sweeper.sim.faults import FaultAction, FaultPlan
 from sweeper.sim.library import SimDevice, SweeperSimLibrary, open_sim_resource_manager
+from sweeper.sim.probes import Probe, ProbedDut
 
 GENERATOR_RESOURCE = "TCPIP0::sim-gen::5025::SOCKET"
 SCOPE_A_RESOURCE = "TCPIP0::sim-scope-a::5025::SOCKET"
@@ -25,9 +27,12 @@ __all__ = [
     "METER_RESOURCE",
     "SCOPE_A_RESOURCE",
     "SCOPE_B_RESOURCE",
+    "Drift",
     "FaultAction",
     "FaultPlan",
     "GeneratorSettings",
+    "Probe",
+    "ProbedDut",
     "SimBench",
     "SimClock",
     "SimConfig",

@@ -23,7 +23,7 @@ from typing import Protocol
 
 import numpy as np
 
-SOURCE_RESISTANCE_OHM = 50.0  # generator's internal source resistance (DIALECTS.md, FG-1)
+SOURCE_RESISTANCE_OHM = 50.0  # generator's internal source resistance (DIALECTS.md, STIM-1)
 DISTORTION_HARMONICS = (2, 3)  # harmonic orders added when distortion is on
 _DC_FALLBACK_HZ = 1e-9  # stands in for 0 Hz when a model cannot be evaluated at exactly DC
 
@@ -134,8 +134,12 @@ def node_spectrum(
     )
 
 
-def node_values_v(spectrum: NodeSpectrum, phase_rad: np.ndarray) -> np.ndarray:
-    """Node voltages (V) at the given fundamental phases (rad): shape (2, N), row 0 input, row 1 output."""
+def node_values_v(spectrum: NodeSpectrum, phase_rad: np.ndarray, output_delay_rad: float = 0.0) -> np.ndarray:
+    """Node voltages (V) at the given fundamental phases (rad): shape (2, N), row 0 input, row 1 output.
+
+    output_delay_rad: row 1 is taken that much fundamental phase earlier (a channel whose
+    record lags by a time tau has output_delay_rad = 2 pi f tau; harmonic k lags k times it).
+    """
     phase = np.asarray(phase_rad, dtype=float)
     out = np.empty((2,) + phase.shape)
     out[0] = spectrum.dc_input_v
@@ -145,8 +149,30 @@ def node_values_v(spectrum: NodeSpectrum, phase_rad: np.ndarray) -> np.ndarray:
         s, c = np.sin(kphase), np.cos(kphase)
         # Im(V exp(j x)) = Re(V) sin x + Im(V) cos x
         out[0] += v_in.real * s + v_in.imag * c
+        if output_delay_rad:
+            s, c = np.sin(kphase - k * output_delay_rad), np.cos(kphase - k * output_delay_rad)
         out[1] += v_out.real * s + v_out.imag * c
     return out
+
+
+def scaled_spectrum(spectrum: NodeSpectrum, input_factor: complex = 1.0, output_factor: complex = 1.0) -> NodeSpectrum:
+    """The spectrum with every line of a node multiplied by a complex factor, its DC level by the
+    factor's magnitude (a flat gain and phase change: a channel's error, or the DUT's drift)."""
+    return NodeSpectrum(
+        frequency_hz=spectrum.frequency_hz,
+        harmonics=spectrum.harmonics,
+        input_v=spectrum.input_v * input_factor,
+        output_v=spectrum.output_v * output_factor,
+        dc_input_v=spectrum.dc_input_v * abs(input_factor),
+        dc_output_v=spectrum.dc_output_v * abs(output_factor),
+    )
+
+
+def channel_factor(gain_db: float, phase_deg: float) -> complex:
+    """A channel's complex gain error: 10^(gain_db / 20) exp(j phase_deg) (1 for an ideal channel)."""
+    magnitude = 10.0 ** (gain_db / 20.0)
+    phase_rad = math.radians(phase_deg)
+    return complex(magnitude * math.cos(phase_rad), magnitude * math.sin(phase_rad))
 
 
 def sample_phases_rad(start_phase_rad: float, frequency_hz: float, sample_interval_s: float, samples: int) -> np.ndarray:

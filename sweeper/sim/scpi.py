@@ -2,8 +2,8 @@
 
 Headers follow SCPI 1999 conventions: case-insensitive, each node in its short form (the
 upper-case letters of its mnemonic) or long form (the whole mnemonic), an optional leading
-colon, optional numeric suffixes where a node takes one (``CHANnel<n>`` matches CHAN1,
-channel2, CHAN = 1), and a trailing '?' for queries. IEEE 488.2 common commands (*RST, *CLS,
+colon, optional numeric suffixes where a node takes one (``VIEW<n>`` matches VIEW1,
+view2, VIEW = 1), and a trailing '?' for queries. IEEE 488.2 common commands (*RST, *CLS,
 *ESR?, *OPC, *WAI, SYSTem:ERRor?) and the error queue live in `ScpiInstrument`.
 """
 
@@ -45,7 +45,7 @@ class ScpiError(Exception):
 
 
 def _node_regex(mnemonic: str) -> str:
-    """Regex for one node: 'CHANnel<n>' -> '(?:CHAN|CHANNEL)(\\d*)'; '*IDN' -> '\\*IDN'."""
+    """Regex for one node: 'DETector<n>' -> '(?:DET|DETECTOR)(\\d*)'; '*IDN' -> '\\*IDN'."""
     suffix = mnemonic.endswith("<n>")
     word = mnemonic[:-3] if suffix else mnemonic
     short = "".join(ch for ch in word if not ch.islower())
@@ -101,7 +101,7 @@ def parse_bool(text: str) -> bool:
 
 
 def parse_suffixed(text: str, mnemonic: str, lo: int, hi: int) -> int:
-    """A suffixed parameter such as CHAN2 or CH1 (suffix defaults to 1); -224 or -114 on error."""
+    """A suffixed parameter such as LANE2 or VIEW1 (suffix defaults to 1); -224 or -114 on error."""
     m = compile_mnemonic(mnemonic).fullmatch(text.strip())
     if not m:
         raise ScpiError(ILLEGAL_PARAMETER_VALUE)

@@ -71,7 +71,7 @@ def drifted(tmp_path_factory):
 
 
 def test_drift_matches_scipy_freqs_difference(drifted) -> None:
-    _, result, table, _ = drifted
+    _, result, table, sweeps = drifted
     assert [s.outcome.status for s in result.sweeps] == ["complete"] * 3
     f = table["frequency_hz"].to_numpy()
     g0, p0 = loaded_rc(C_F, f)
@@ -84,9 +84,19 @@ def test_drift_matches_scipy_freqs_difference(drifted) -> None:
     # The tolerances are well below the effects they check: 20 log10(1.02) = 0.172 dB above the
     # corner, and about 0.57 degree of phase at the corner (reference values, computed above).
     assert np.max(np.abs(g1 - g0)) > 8 * GAIN_TOL_DB and np.max(np.abs(p1 - p0)) > 2.5 * PHASE_TOL_DEG
-    # Sweeps 1 and 3 are the same board on a seeded simulator; the largest change is sweep 2's.
-    assert (table["gain_change_sweep"] == 2).all() and (table["phase_change_sweep"] == 2).all()
-    assert (table["gain_change_run_id"] == result.sweeps[1].outcome.run_id).all()
+    # Sweeps 1 and 3 are the same board. The simulator mixes each sweep's number into its
+    # random streams, so they are not bit-identical (a real bench never repeats its noise), yet
+    # each is within the tolerance of the same response, so they differ by at most twice it.
+    first, third = sweeps[0].frame, sweeps[2].frame
+    assert not np.array_equal(first["gain_db"].to_numpy(), third["gain_db"].to_numpy())
+    assert np.all(np.abs(third["gain_db"].to_numpy() - first["gain_db"].to_numpy()) <= 2 * GAIN_TOL_DB)
+    assert np.all(np.abs(third["phase_deg"].to_numpy() - first["phase_deg"].to_numpy()) <= 2 * PHASE_TOL_DEG)
+    # So wherever sweep 2's reference change exceeds four tolerances (its measured change is then
+    # above two, sweep 3's below two), the largest change is sweep 2's: gain above the corner.
+    clear = np.abs(g1 - g0) > 4 * GAIN_TOL_DB
+    assert clear.sum() >= 5
+    assert (table["gain_change_sweep"][clear] == 2).all()
+    assert (table["gain_change_run_id"][clear] == result.sweeps[1].outcome.run_id).all()
     assert (table["sweeps_compared"] == 2).all()
 
 

@@ -37,13 +37,13 @@ scope:
   samples: {min: 100, max: 10000}
   operations:
     reset: [{write: "*RST"}]
-    set_scale: [{write: "CH{channel}:SCALE {volts_per_div}"}]
+    set_scale: [{write: "LANE{channel}:DIV {volts_per_div}"}]
     set_sample_rate: [{write: "RATE {sample_rate_hz}"}]
     set_samples: [{write: "POINTS {samples}"}]
     arm: [{write: "RUN"}, {query: "*OPC?", expect: "1"}]
     fetch: [{query: "DATA? {channel}", parse: ints, store: codes}]
     scaling:
-      - query: "PRE? {channel}"
+      - query: "LEG? {channel}"
         parse: {fields: [x_increment, y_increment, y_origin, y_reference]}
 """
 
@@ -58,10 +58,10 @@ def test_shipped_drivers_load(name: str) -> None:
 def test_idn_patterns_suggest_the_right_driver() -> None:
     # *IDN? answers from sweeper/sim/DIALECTS.md
     answers = {
-        "sim-generator.yaml": "Sweeper Sim,FG-1,SIM-FG-0001,1.0",
-        "sim-scope-a.yaml": "Sweeper Sim,DSO-A2,SIM-SA-0001,1.0",
-        "sim-scope-b.yaml": "Sweeper Sim,DSO-B2,SIM-SB-0001,1.0",
-        "sim-meter.yaml": "Sweeper Sim,GPM-1,SIM-GP-0001,1.0",
+        "sim-generator.yaml": "Sweeper Sim,STIM-1,SIM-ST-0001,1.0",
+        "sim-scope-a.yaml": "Sweeper Sim,CAP-2A,SIM-CA-0001,1.0",
+        "sim-scope-b.yaml": "Sweeper Sim,SNAP-2B,SIM-SN-0001,1.0",
+        "sim-meter.yaml": "Sweeper Sim,RATIO-1,SIM-RA-0001,1.0",
     }
     drivers = {name: load_driver(repository_drivers_dir() / name).driver for name in SHIPPED}
     for name, idn in answers.items():
@@ -109,10 +109,10 @@ def test_missing_field_points_at_its_parent() -> None:
 
 
 def test_unknown_placeholder_is_located() -> None:
-    text = GOOD_SCOPE.replace("SCALE {volts_per_div}", "SCALE {volts}")
+    text = GOOD_SCOPE.replace("DIV {volts_per_div}", "DIV {volts}")
     (problem,) = _problems(text)
     assert _where([problem]) == [(15, 25, "scope.operations.set_scale[0].write", "unknown_placeholder")]
-    assert problem.given == '"CH{channel}:SCALE {volts}"'
+    assert problem.given == '"LANE{channel}:DIV {volts}"'
     assert "{volts}" in problem.text
 
 

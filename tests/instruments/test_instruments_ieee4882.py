@@ -121,8 +121,8 @@ def test_encode_refuses_values_that_do_not_fit() -> None:
 
 
 def test_parse_idn() -> None:
-    idn = ieee4882.parse_idn("Sweeper Sim,DSO-A2,SIM-SA-0001,1.0\n")
-    assert (idn.maker, idn.model, idn.serial, idn.firmware) == ("Sweeper Sim", "DSO-A2", "SIM-SA-0001", "1.0")
+    idn = ieee4882.parse_idn("Sweeper Sim,CAP-2A,SIM-CA-0001,1.0\n")
+    assert (idn.maker, idn.model, idn.serial, idn.firmware) == ("Sweeper Sim", "CAP-2A", "SIM-CA-0001", "1.0")
     # the firmware field may itself hold commas: only the first three split
     assert ieee4882.parse_idn("A,B,C,fw 1,2").firmware == "fw 1,2"
     with pytest.raises(BlockError, match="has 2 fields, expected 4"):

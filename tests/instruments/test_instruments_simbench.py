@@ -91,7 +91,7 @@ def test_both_dialects_capture_the_same_signal() -> None:
         scope_b, identity_b, _ = open_role(
             bench.resource_manager, "scope", SCOPE_B_RESOURCE, load_driver(repository_drivers_dir() / "sim-scope-b.yaml")
         )
-        assert identity_b.idn == "Sweeper Sim,DSO-B2,SIM-SB-0001,1.0"
+        assert identity_b.idn == "Sweeper Sim,SNAP-2B,SIM-SN-0001,1.0"
         scope_b.set_range(1, 2.5)
         scope_b.set_range(2, 2.5)
         assert scope_b.set_window(100e3, 5000) == (100e3, 5000)  # 5 ms/div x 10 div / 5000 samples
@@ -123,9 +123,10 @@ def test_both_dialects_capture_the_same_signal() -> None:
 
 
 def test_transactions_per_capture_and_per_point() -> None:
-    # Dialect A selects and fetches in one compound message (IEEE 488.2 message units);
-    # dialect B selects the channel with a separate write, skipped when already selected.
-    for scope, first, steady, point in (("sim-scope-a.yaml", 5, 3, 4), ("sim-scope-b.yaml", 13, 4, 5)):
+    # Dialect A names the lane in the fetch and legend queries themselves; dialect B selects
+    # the view and fetches (or asks its four key queries) in one compound message (IEEE 488.2
+    # message units). Either way a steady-state point is 4 transactions.
+    for scope, first, steady, point in (("sim-scope-a.yaml", 5, 3, 4), ("sim-scope-b.yaml", 5, 3, 4)):
         plan = load_plan_text(plan_text(scope=scope), "t.yaml")
         with open_bench(bench_spec(plan)) as bench:
             prepared(bench)
@@ -142,7 +143,7 @@ def test_transactions_per_capture_and_per_point() -> None:
             for _ in range(3):
                 before = count()
                 bench.scope.capture()
-                # A: arm;*OPC? + two select;fetch.  B: arm;*OPC? + fetch + select + fetch
+                # A: take;*OPC? + two fetches.  B: go;*OPC? + two select;fetch
                 assert count() - before == steady
             # settings equal to the current ones are not resent
             before = count()
@@ -162,7 +163,7 @@ def test_transactions_per_capture_and_per_point() -> None:
 def test_window_limits_and_rounding() -> None:
     with open_bench(bench_spec(load_plan_text(plan_text(scope="sim-scope-a.yaml"), "t.yaml"))) as bench:
         prepared(bench)
-        # dialect A rounds a rate down to 1-2-5 and says so in :ACQ:SRAT?
+        # dialect A rounds a rate down to 1-2-5 and says so in CAPT:RATE?
         assert bench.scope.set_window(150e3, 4000) == (100e3, 4000)
         assert bench.scope.capture().sample_interval_s == pytest.approx(1e-5, rel=1e-12)
         assert bench.scope.set_window(1e12, 10) == (1e9, 1000)  # clamped to the driver's limits
@@ -170,7 +171,7 @@ def test_window_limits_and_rounding() -> None:
         prepared(bench)
         # dialect B: 4000 / (150 kSa/s x 10 div) = 2.67 ms/div -> 5 ms/div -> 80 kSa/s
         assert bench.scope.set_window(150e3, 4000) == (80e3, 4000)
-        # the scope's own XINCR answer agrees with our timebase arithmetic
+        # the scope's own KEY:TICK? answer agrees with our timebase arithmetic
         assert bench.scope.capture().sample_interval_s == pytest.approx(1 / 80e3, rel=1e-12)
         assert bench.scope.limits.full_scales_v[0] == pytest.approx(0.01)  # 1 mV/div x 10
         assert bench.scope.limits.full_scales_v[-1] == pytest.approx(100.0)
@@ -182,7 +183,7 @@ def test_clipping_is_detected() -> None:
         assert bench.scope.set_range(1, 0.1) == pytest.approx(0.1)  # 12.5 mV/div (R10) x 8
         capture = bench.scope.capture()
         assert capture.clipped == (True, False)
-        # the clipped channel sits at the top code: (127 * 256) * yincrement
+        # the clipped channel sits at the top code: (127 * 256) * volts per count
         assert capture.volts[0].max() == pytest.approx(127 / 256 * 0.1, rel=1e-9)
         bench.scope.set_range(1, 2.5)
         assert bench.scope.capture().clipped == (False, False)
@@ -202,9 +203,9 @@ def test_error_queue_names_the_refused_command(tmp_path: Path) -> None:
         with pytest.raises(ScpiError) as info:
             bench.source.configure_sine(15.0, 0.0, None)
         error = info.value
-        assert error.command == "SOUR:VOLT 15"
+        assert error.command == "STIM:SWIN 15"
         assert error.errors == ((-222, "Data out of range"),)  # DIALECTS.md: -222 for out of range
-        assert "'SOUR:VOLT 15'" in str(error) and '-222,"Data out of range"' in str(error)
+        assert "'STIM:SWIN 15'" in str(error) and '-222,"Data out of range"' in str(error)
         assert bench.source.drain_errors() == []  # drained
         # the shipped limits stop the same request before anything is sent
         before = bench.stats.writes + bench.stats.queries
@@ -232,7 +233,7 @@ def test_close_never_raises_when_the_source_is_gone() -> None:
     bench.source.configure_sine(2.0, 0.0, None)
     bench.source.set_output(True)
     # the generator's link breaks on the way to 'output off' (first try and the retry)
-    faults.drop_session("TCPIP0::sim-gen::5025::SOCKET", contains="OUTP OFF", times=5)
+    faults.drop_session("TCPIP0::sim-gen::5025::SOCKET", contains="DRIV:ENAB OFF", times=5)
     bench.close()
     assert bench.output_off is False  # reported, not raised
     assert bench.sim.generator.output_on  # the simulated generator really is still on
@@ -243,11 +244,11 @@ def test_faults_surface_as_instrument_errors() -> None:
     with open_bench(bench_spec(load_plan_text(plan_text(), "t.yaml")), sim_faults=faults) as bench:
         prepared(bench)
         bench.scope.capture()
-        faults.truncate_block("TCPIP0::sim-scope-a::5025::SOCKET", keep_fraction=0.5, contains=":WAV:DATA?")
-        with pytest.raises(MalformedResponse, match=r"':WAV:SOUR CHAN\d;:WAV:DATA\?': truncated block"):
+        faults.truncate_block("TCPIP0::sim-scope-a::5025::SOCKET", keep_fraction=0.5, contains=":BLOC?")
+        with pytest.raises(MalformedResponse, match=r"'LANE\d:BLOC\?': truncated block"):
             bench.scope.capture()
         faults.drop_answer("TCPIP0::sim-scope-a::5025::SOCKET", contains="*OPC?")
-        with pytest.raises(InstrumentTimeout, match=r"':SING;\*OPC\?': no complete answer"):
+        with pytest.raises(InstrumentTimeout, match=r"'CAPT:TAKE;\*OPC\?': no complete answer"):
             bench.scope.capture()
         # after a fault the interpreter forgets what it believed was selected, and recovers
         capture = bench.scope.capture()
@@ -256,7 +257,7 @@ def test_faults_surface_as_instrument_errors() -> None:
 
 def test_wrong_instrument_is_refused() -> None:
     with open_bench(bench_spec(load_plan_text(plan_text(), "t.yaml"))) as bench:
-        with pytest.raises(IdentityMismatch, match="answered 'Sweeper Sim,DSO-B2,SIM-SB-0001,1.0'"):
+        with pytest.raises(IdentityMismatch, match="answered 'Sweeper Sim,SNAP-2B,SIM-SN-0001,1.0'"):
             open_role(bench.resource_manager, "scope", SCOPE_B_RESOURCE,
                       load_driver(repository_drivers_dir() / "sim-scope-a.yaml"))
 
@@ -272,7 +273,7 @@ def test_meter_mode() -> None:
         bench.meter.measure(F_HZ)
         before = bench.stats.writes + bench.stats.queries
         reading = bench.meter.measure(F_HZ)
-        assert bench.stats.writes + bench.stats.queries - before == 6  # INIT, *OPC?, four fetches
+        assert bench.stats.writes + bench.stats.queries - before == 1  # DET:RUN;RES:ALL? in one message
         h = divider_h(F_HZ)
         # Handbook divider formula. The meter's detector noise: 0.5 mV rms spread over 1 MHz,
         # seen through the 100 Hz bandwidth the driver picks at 1 kHz, is ~5 uV on ~0.7 V, i.e.
@@ -289,8 +290,8 @@ def test_bench_limits_without_sessions(tmp_path: Path) -> None:
 
     limits, problems = bench_limits(bench_spec(load_plan_text(plan_text(scope="sim-scope-b.yaml"), "t.yaml")))
     assert problems == []
-    assert limits["source"].frequency_max_hz == 20e6  # DIALECTS.md: FG-1 up to 20 MHz
-    assert limits["scope"].max_samples == 250_000  # DIALECTS.md: DSO-B2 record up to 250,000
+    assert limits["source"].frequency_max_hz == 20e6  # DIALECTS.md: STIM-1 up to 20 MHz
+    assert limits["scope"].max_samples == 250_000  # DIALECTS.md: SNAP-2B record up to 250,000
     broken = tmp_path / "plan.yaml"
     broken.write_text(plan_text(scope="missing-scope.yaml", generator="sim-meter.yaml"))
     limits, problems = bench_limits(bench_spec(load_plan(broken)))

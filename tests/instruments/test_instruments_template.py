@@ -11,9 +11,9 @@ from sweeper.instruments.template import TemplateError, format_number, placehold
 
 
 def test_render_numbers_and_tokens() -> None:
-    values = {"channel": 2, "volts_per_div": 0.05, "load": "INF"}
-    assert render(":CHAN{channel}:SCAL {volts_per_div}", values) == ":CHAN2:SCAL 0.05"
-    assert render("OUTP:LOAD {load}", values) == "OUTP:LOAD INF"
+    values = {"channel": 2, "volts_per_div": 0.05, "load": "HIZ"}
+    assert render("LANE{channel}:DIV {volts_per_div}", values) == "LANE2:DIV 0.05"
+    assert render("DRIV:INTO {load}", values) == "DRIV:INTO HIZ"
     assert render("*OPC?", {}) == "*OPC?"
 
 
@@ -47,7 +47,7 @@ def test_numbers_read_back_exactly(value: float) -> None:
 
 def test_unknown_placeholder_is_named() -> None:
     with pytest.raises(TemplateError, match=r"unknown placeholder \{volts\}.*known here: channel"):
-        render(":CHAN{channel}:SCAL {volts}", {"channel": 1})
+        render("LANE{channel}:DIV {volts}", {"channel": 1})
 
 
 @pytest.mark.parametrize(
@@ -84,18 +84,18 @@ def test_anything_but_a_plain_name_is_malformed(hostile: str) -> None:
         render(hostile, {"channel": 1})
 
 
-@pytest.mark.parametrize("value", ["INF;*RST", "A B", "1\n*RST", "x:y", '"q"', ""])
+@pytest.mark.parametrize("value", ["HIZ;*RST", "A B", "1\n*RST", "x:y", '"q"', ""])
 def test_string_values_must_be_plain_tokens(value: str) -> None:
     # A value can never end the message or chain another command.
     with pytest.raises(TemplateError, match="not a plain token"):
-        render("OUTP:LOAD {load}", {"load": value})
+        render("DRIV:INTO {load}", {"load": value})
 
 
 @pytest.mark.parametrize("value", [math.nan, math.inf, -math.inf, True, None, [1]])
 def test_non_numbers_are_refused(value: object) -> None:
     with pytest.raises(TemplateError):
-        render("SOUR:FREQ {frequency_hz}", {"frequency_hz": value})  # type: ignore[dict-item]
+        render("STIM:TONE {frequency_hz}", {"frequency_hz": value})  # type: ignore[dict-item]
 
 
 def test_placeholders_listed_in_order() -> None:
-    assert placeholders(":CHAN{channel}:SCAL {volts_per_div};{channel}") == ("channel", "volts_per_div", "channel")
+    assert placeholders("LANE{channel}:DIV {volts_per_div};{channel}") == ("channel", "volts_per_div", "channel")

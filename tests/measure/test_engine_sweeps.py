@@ -109,7 +109,7 @@ def test_rc_lowpass_noise_free_matches_scipy_freqs(tmp_path: Path) -> None:
     assert np.max(np.abs(frame["gain_db"] - g)) < 0.01
     assert np.max(np.abs(phase_error(frame["phase_deg"].to_numpy(), p))) < 0.1
     assert outcome.verdict == Verdict.PASS
-    assert meta["instruments"][1]["idn"].startswith("Sweeper Sim,DSO-A2")
+    assert meta["instruments"][1]["idn"].startswith("Sweeper Sim,CAP-2A")
 
 
 def test_rc_lowpass_at_40_db_snr_within_tolerance_and_uncertainty(tmp_path: Path) -> None:

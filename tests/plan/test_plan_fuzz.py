@@ -105,7 +105,10 @@ def _mutate_tree(data: st.DataObject, tree: Any) -> Any:
     elif operation == "move" and isinstance(tree, dict) and tree:
         section = data.draw(st.sampled_from(list(tree)))
         if isinstance(parent, dict) and section != key:
-            tree.setdefault("moved", {})[str(key)] = parent.pop(key)
+            moved = tree.get("moved")
+            if not isinstance(moved, dict):  # an earlier mutation may have replaced it
+                moved = tree["moved"] = {}
+            moved[str(key)] = parent.pop(key)
     elif operation == "nudge" and isinstance(parent[key], (int, float)) and not isinstance(parent[key], bool):
         parent[key] = parent[key] * data.draw(st.sampled_from([-1, 0, 0.5, 10, 1e6, math.inf]))
     return tree

@@ -92,14 +92,14 @@ def test_resume_refuses_other_instruments(tmp_path: Path) -> None:
     outcome = interrupted_run(tmp_path)
 
     def other_scope(meta: dict) -> None:
-        meta["instruments"][1]["idn"] = "Sweeper Sim,DSO-A2,SIM-DSOA-9999,1.0"
+        meta["instruments"][1]["idn"] = "Sweeper Sim,CAP-2A,SIM-CA-9999,1.0"
 
     journal = rewritten(outcome.journal_path, other_scope)
     before = journal.read_bytes()
     result = resume(str(journal))
     assert result.exit_code == 3
     assert "not the bench this run started on" in result.output
-    assert "SIM-DSOA-9999" in result.output and "scope (TCPIP0::sim-scope-a::5025::SOCKET)" in result.output
+    assert "SIM-CA-9999" in result.output and "scope (TCPIP0::sim-scope-a::5025::SOCKET)" in result.output
     assert journal.read_bytes() == before  # nothing was written
 
 
@@ -169,3 +169,24 @@ def test_stop_request_is_a_clean_interruption(tmp_path: Path) -> None:
     outcome = execute_run(plan, tmp_path / "runs", on_point=seen.append, should_stop=stop)
     assert outcome.status == "interrupted" and outcome.exit_code == 130
     assert outcome.sim_output_on is False and len(read_journal(outcome.journal_path).points) == 2
+
+
+def test_a_resumed_campaign_sweep_opens_the_same_simulated_bench(tmp_path: Path) -> None:
+    # A campaign's sweep number is mixed into the simulator's seed (its sweeps differ); it is
+    # stored in the run, so a resume reopens the same bench and measures what an uninterrupted
+    # sweep measures, bit for bit (with the transient off, as for any resume).
+    sweep_two = {"campaign_sweep": 2, "campaign_offset_s": 600.0}
+    seen = []
+    plan = load(plan_text(points=POINTS, transient="false"), tmp_path)
+    outcome = execute_run(plan, tmp_path / "runs", on_point=seen.append, should_stop=lambda: len(seen) >= 4,
+                          extra_metadata=sweep_two)
+    assert outcome.status == "interrupted"
+    result = resume(str(outcome.run_path))
+    assert result.exit_code == 0, result.output
+    resumed = without_times(read_run(outcome.run_path)[0])
+    twin = execute_run(load(plan_text(points=POINTS, transient="false"), tmp_path / "twin"), tmp_path / "twin",
+                       extra_metadata=sweep_two)
+    assert frames_identical(resumed, without_times(read_run(twin.run_path)[0]))
+    other = execute_run(load(plan_text(points=POINTS, transient="false"), tmp_path / "other"), tmp_path / "other",
+                        extra_metadata={**sweep_two, "campaign_sweep": 3})
+    assert not frames_identical(resumed, without_times(read_run(other.run_path)[0]))

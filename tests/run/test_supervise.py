@@ -135,7 +135,7 @@ def test_scpi_error_aborts_naming_the_command(tmp_path: Path) -> None:
                             injections="[{kind: scpi_error, at_point: 2, code: -222, message: Data out of range}]")
     assert outcome.status == "error"
     assert '-222,"Data out of range"' in outcome.error
-    assert ":WAV:DATA?" in outcome.error  # the commands sent since the queue was last read
+    assert ":BLOC?" in outcome.error  # the commands sent since the queue was last read
     assert [p.index for p in reported] == [0, 1]
     assert_safe(outcome, reported)
 
@@ -145,7 +145,7 @@ def test_scpi_error_of_an_unchecked_command_is_caught_after_the_last_point(tmp_p
     # the queue is read once more after the last point, so the error is not left behind.
     outcome, reported = run(tmp_path, injections="[{kind: scpi_error, role: source, at_point: 2}]")
     assert outcome.status == "error" and "after the last point" in outcome.error
-    assert "SOUR:FREQ" in outcome.error and '-200,"Execution error"' in outcome.error
+    assert "STIM:TONE" in outcome.error and '-200,"Execution error"' in outcome.error
     assert len(reported) == POINTS
     assert fault_events(outcome) == [(None, "scpi_error", "abort")]
     assert_safe(outcome, reported)
@@ -222,7 +222,7 @@ def test_real_journal_write_failure_in_a_subprocess_keeps_every_point(tmp_path: 
     110 kB until its 64th point), so the journal is the file whose write fails, mid-run."""
     plan = tmp_path / "plan.yaml"
     plan.write_text(plan_text(points=60, stop="50 kHz", faults="{timeout: {retries: 1000, backoff: 0 s}}",
-                              injections="[{kind: timeout, probability: 60 %, seed: 1, command: 'WAV:DATA'}]"))
+                              injections="[{kind: timeout, probability: 60 %, seed: 1, command: 'BLOC?'}]"))
     runs = tmp_path / "runs"
 
     def limit() -> None:

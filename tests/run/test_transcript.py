@@ -40,8 +40,8 @@ def test_transcript_records_every_transaction_beside_the_run(tmp_path: Path) -> 
     # Waveform blocks are summarised, not dumped.
     assert any(r["answer"].startswith("<block of ") for r in transactions)
     # And it closes with the source switched off.
-    switching = [r["command"] for r in transactions if r["role"] == "source" and r["command"].startswith("OUTP")]
-    assert switching[-1] == "OUTP OFF" and "OUTP ON" in switching
+    switching = [r["command"] for r in transactions if r["role"] == "source" and r["command"].startswith("DRIV:ENAB")]
+    assert switching[-1] == "DRIV:ENAB OFF" and "DRIV:ENAB ON" in switching
 
 
 def test_transcript_shows_a_fault_and_its_handling(tmp_path: Path) -> None:

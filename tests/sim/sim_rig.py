@@ -39,42 +39,42 @@ class Rig:
     scope_b: MessageBasedResource
     meter: MessageBasedResource
 
-    def drive(self, frequency_hz: float, amplitude_vpp: float, load: str = "INF", offset_v: float = 0.0) -> None:
+    def drive(self, frequency_hz: float, amplitude_vpp: float, load: str = "HIZ", offset_v: float = 0.0) -> None:
         """Set the generator and switch it on, then let the DUT settle (1 s of simulated time)."""
         for command in (
-            f"OUTPut:LOAD {load}",
-            f"SOURce:FREQuency {frequency_hz!r}",
-            f"SOURce:VOLTage {amplitude_vpp!r}",
-            f"SOURce:VOLTage:OFFSet {offset_v!r}",
-            "OUTPut ON",
+            f"DRIVe:INTO {load}",
+            f"STIMulus:TONE {frequency_hz!r}",
+            f"STIMulus:SWINg {amplitude_vpp!r}",
+            f"STIMulus:BIAS {offset_v!r}",
+            "DRIVe:ENABle ON",
         ):
             self.gen.write(command)
         self.bench.clock.sleep(1.0)
 
     def capture_a(
-        self, scale_v_per_div: tuple[float, float], sample_rate_hz: float, points: int, fmt: str = "WORD"
+        self, scale_v_per_div: tuple[float, float], sample_rate_hz: float, points: int, width_bits: int = 16
     ) -> tuple[np.ndarray, float]:
-        """One :SINGle acquisition on scope A, both channels scaled by the preamble: (volts (2, N), dt s)."""
+        """One CAPTure:TAKE acquisition on scope A, both lanes scaled by their legend: (volts (2, N), dt s)."""
         s = self.scope_a
         for ch, scale in zip((1, 2), scale_v_per_div):
-            s.write(f":CHANnel{ch}:SCALe {scale!r}")
-        s.write(f":ACQuire:SRATe {sample_rate_hz!r}")
-        s.write(f":ACQuire:POINts {points}")
-        s.write(":TRIGger:SOURce CHAN1")
-        s.write(":SINGle")
+            s.write(f"LANE{ch}:DIVision {scale!r}")
+        s.write(f"CAPTure:RATE {sample_rate_hz!r}")
+        s.write(f"CAPTure:LENGth {points}")
+        s.write("CAPTure:ANCHor LANE1")
+        s.write("CAPTure:TAKE")
         assert s.query("*OPC?") == "1"
+        s.write(f"CAPTure:WIDTh {width_bits}")
         rows, dt = [], 0.0
         for ch in (1, 2):
-            s.write(f":WAVeform:SOURce CHAN{ch}")
-            s.write(f":WAVeform:FORMat {fmt}")
-            fields = s.query(":WAVeform:PREamble?").split(",")
-            assert fields[0] == fmt
-            dt, y_inc, y_org, y_ref = (float(x) for x in fields[2:6])
+            fields = s.query(f"LANE{ch}:LEGend?").split(",")
+            assert int(fields[5]) == width_bits
+            dt, per_count, reference, at_reference = (float(x) for x in fields[1:5])
             codes = s.query_binary_values(
-                ":WAVeform:DATA?", datatype="h" if fmt == "WORD" else "b", is_big_endian=False, container=np.array
+                f"LANE{ch}:BLOCk?", datatype="h" if width_bits == 16 else "b", is_big_endian=False, container=np.array
             )
-            assert len(codes) == int(fields[1])
-            rows.append((codes - y_ref) * y_inc + y_org)  # DIALECTS.md: volts = (count - yref) * yinc + yorigin
+            assert len(codes) == int(fields[0])
+            # DIALECTS.md: volts = (count - reference count) * volts per count + volts at reference
+            rows.append((codes - reference) * per_count + at_reference)
         return np.array(rows), dt
 
     def capture_b(
@@ -83,24 +83,24 @@ class Rig:
         """One single-sequence acquisition on scope B: (volts (2, N), dt s, raw codes (2, N))."""
         s = self.scope_b
         for ch, scale in zip((1, 2), volts_per_div):
-            s.write(f"CH{ch}:VOLts {scale!r}")
-            s.write(f"CH{ch}:POSition {position_div!r}")
-        s.write(f"HORizontal:SCAle {seconds_per_div!r}")
-        s.write(f"HORizontal:RECOrdlength {record}")
-        s.write("ACQuire:STOPAfter SEQuence")
-        s.write("ACQuire:STATE RUN")
+            s.write(f"VIEW{ch}:SENSitivity {scale!r}")
+            s.write(f"VIEW{ch}:LIFT {position_div!r}")
+        s.write(f"FRAMe:PITCh {seconds_per_div!r}")
+        s.write(f"FRAMe:DOTS {record}")
+        s.write("SNAP:MODE ONCE")
+        s.write("SNAP:GO")
         assert s.query("*OPC?") == "1"
-        s.write("DATa:ENCdg ASCii")
+        s.write("LIST:RADix DECimal")
         rows, raw, dt = [], [], 0.0
         for ch in (1, 2):
-            s.write(f"DATa:SOUrce CH{ch}")
-            y_mult = float(s.query("WFMOutpre:YMUlt?"))
-            y_off = float(s.query("WFMOutpre:YOFf?"))
-            y_zero = float(s.query("WFMOutpre:YZEro?"))
-            dt = float(s.query("WFMOutpre:XINcr?"))
-            codes = np.array(s.query_ascii_values("CURVe?", converter="d"))
+            s.write(f"LIST:FROM VIEW{ch}")
+            step = float(s.query("KEY:STEP?"))
+            origin = float(s.query("KEY:ORIGin?"))
+            base = float(s.query("KEY:BASE?"))
+            dt = float(s.query("KEY:TICK?"))
+            codes = np.array(s.query_ascii_values("LIST:CODes?", converter="d"))
             raw.append(codes)
-            rows.append((codes - y_off) * y_mult + y_zero)  # DIALECTS.md: volts = (code - YOFF) * YMULT + YZERO
+            rows.append((codes - origin) * step + base)  # DIALECTS.md: volts = (code - ORIGin) * STEP + BASE
         return np.array(rows), dt, np.array(raw)
 
 

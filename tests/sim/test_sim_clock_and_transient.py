@@ -33,10 +33,10 @@ def test_scope_a_single_advances_the_clock_by_the_record_duration(open_rig):
     rig = open_rig(divider(1e3, 1e3))
     rig.drive(997.0, amplitude_vpp=1.0)
     a = rig.scope_a
-    a.write(":ACQ:SRAT 1e5")
-    a.write(":ACQ:POIN 10000")
+    a.write("CAPT:RATE 1e5")
+    a.write("CAPT:LENG 10000")
     before = rig.bench.clock.now_s()
-    a.write(":SINGle")
+    a.write("CAPTure:TAKE")
     elapsed = rig.bench.clock.now_s() - before - LATENCY_S
     record_s = 10_000 / 1e5
     # The trigger fires within one period of the generator, then the record runs.
@@ -47,10 +47,10 @@ def test_scope_b_acquisition_advances_the_clock_by_ten_divisions(open_rig):
     rig = open_rig(divider(1e3, 1e3))
     rig.drive(997.0, amplitude_vpp=1.0)
     b = rig.scope_b
-    b.write("HOR:SCA 2e-3")
-    b.write("HOR:RECO 5000")
+    b.write("FRAM:PITC 2e-3")
+    b.write("FRAM:DOTS 5000")
     before = rig.bench.clock.now_s()
-    b.write("ACQ:STATE RUN")
+    b.write("SNAP:GO")
     elapsed = rig.bench.clock.now_s() - before - LATENCY_S
     assert 10 * 2e-3 <= elapsed <= 10 * 2e-3 + 1 / 997.0
 
@@ -59,8 +59,8 @@ def test_each_transaction_costs_the_configured_latency(open_rig):
     rig = open_rig(divider(1e3, 1e3), transaction_latency_s=2e-3)
     before = rig.bench.clock.now_s()
     for _ in range(5):
-        rig.gen.query("SOUR:FREQ?")
-    rig.scope_b.write("CH1:VOL 1")
+        rig.gen.query("STIM:TONE?")
+    rig.scope_b.write("VIEW1:SENS 1")
     assert rig.bench.clock.now_s() - before == pytest.approx(6 * 2e-3, rel=1e-12)
 
 
@@ -68,20 +68,20 @@ def step_into_rc(open_rig, transient: bool) -> tuple[np.ndarray, float]:
     """Switch a 1 V DC step into an RC low-pass (tau = 1.6 ms) and capture the output at once."""
     rig = open_rig(rc_lowpass(capacitance_f=1e-6), transient=transient)
     g = rig.gen
-    g.write("SOUR:VOLT 0.001")  # the smallest sine: 0.5 mV peak, under a tenth of an LSB here
-    g.write("SOUR:VOLT:OFFS 1")
+    g.write("STIM:SWIN 0.001")  # the smallest sine: 0.5 mV peak, under a tenth of an LSB here
+    g.write("STIM:BIAS 1")
     a = rig.scope_a
-    a.write(":CHAN2:SCAL 0.2")
-    a.write(":CHAN2:OFFS 0.5")  # screen -0.3 V .. 1.3 V
-    a.write(":ACQ:SRAT 1e5")
-    a.write(":ACQ:POIN 2000")  # 20 ms, about 12 time constants
-    g.write("OUTP ON")
-    a.write(":SINGle")
-    a.write(":WAV:SOUR CHAN2")
-    a.write(":WAV:FORM WORD")
-    fields = a.query(":WAV:PRE?").split(",")
-    codes = a.query_binary_values(":WAV:DATA?", datatype="h", container=np.array)
-    return (codes - float(fields[5])) * float(fields[3]) + float(fields[4]), float(fields[2])
+    a.write("LANE2:DIV 0.2")
+    a.write("LANE2:CENT 0.5")  # screen -0.3 V .. 1.3 V
+    a.write("CAPT:RATE 1e5")
+    a.write("CAPT:LENG 2000")  # 20 ms, about 12 time constants
+    g.write("DRIV:ENAB ON")
+    a.write("CAPTure:TAKE")
+    a.write("CAPT:WIDT 16")
+    fields = a.query("LANE2:LEG?").split(",")
+    codes = a.query_binary_values("LANE2:BLOC?", datatype="h", container=np.array)
+    # DIALECTS.md: volts = (count - reference count) * volts per count + volts at reference
+    return (codes - float(fields[3])) * float(fields[2]) + float(fields[4]), float(fields[1])
 
 
 def test_dc_step_charges_the_rc_with_its_time_constant(open_rig):

@@ -14,11 +14,11 @@ from sweeper.sim import GENERATOR_RESOURCE, METER_RESOURCE, SCOPE_A_RESOURCE, Fa
 def capture_codes(rig) -> np.ndarray:
     rig.drive(997.0, amplitude_vpp=1.0)
     a = rig.scope_a
-    a.write(":ACQ:SRAT 1e5")
-    a.write(":ACQ:POIN 2000")
-    a.write(":SINGle")
-    a.write(":WAV:FORM BYTE")
-    return a.query_binary_values(":WAV:DATA?", datatype="b", container=np.array)
+    a.write("CAPT:RATE 1e5")
+    a.write("CAPT:LENG 2000")
+    a.write("CAPTure:TAKE")
+    a.write("CAPT:WIDT 8")
+    return a.query_binary_values("LANE1:BLOC?", datatype="b", container=np.array)
 
 
 def test_two_benches_do_not_share_state(open_rig):
@@ -26,10 +26,10 @@ def test_two_benches_do_not_share_state(open_rig):
     two = open_rig(divider(1e3, 1e3))
     assert one.bench is not two.bench
     assert one.gen.visalib is not two.gen.visalib
-    one.gen.write("SOUR:FREQ 5000")
+    one.gen.write("STIM:TONE 5000")
     one.gen.write("NOT:A:COMMAND")
     one.bench.clock.sleep(10.0)
-    assert float(two.gen.query("SOUR:FREQ?")) == 1000.0  # *RST default, untouched
+    assert float(two.gen.query("STIM:TONE?")) == 1000.0  # *RST default, untouched
     assert two.gen.query("SYST:ERR?") == '0,"No error"'
     assert one.gen.query("SYST:ERR?") == '-113,"Undefined header"'
     assert two.bench.clock.now_s() < 1.0
@@ -53,13 +53,13 @@ def test_hook_is_consulted_for_every_message_and_counters_count_them(open_rig):
         return None
 
     rig = open_rig(divider(1e3, 1e3), faults=hook)
-    rig.gen.write("SOUR:FREQ 2000")
-    rig.gen.query("SOUR:FREQ?")
+    rig.gen.write("STIM:TONE 2000")
+    rig.gen.query("STIM:TONE?")
     rig.meter.query("*IDN?")
     rig.gen.write("BAD")
     assert seen == [
-        (GENERATOR_RESOURCE, "SOUR:FREQ 2000"),
-        (GENERATOR_RESOURCE, "SOUR:FREQ?"),
+        (GENERATOR_RESOURCE, "STIM:TONE 2000"),
+        (GENERATOR_RESOURCE, "STIM:TONE?"),
         (METER_RESOURCE, "*IDN?"),
         (GENERATOR_RESOURCE, "BAD"),
     ]
@@ -67,10 +67,10 @@ def test_hook_is_consulted_for_every_message_and_counters_count_them(open_rig):
 
 
 def test_fault_queues_an_scpi_error(open_rig):
-    plan = FaultPlan().queue_error(GENERATOR_RESOURCE, -310, "System error", contains="FREQ")
+    plan = FaultPlan().queue_error(GENERATOR_RESOURCE, -310, "System error", contains="TONE")
     rig = open_rig(divider(1e3, 1e3), faults=plan)
-    rig.gen.write("SOUR:FREQ 2000")
-    assert float(rig.gen.query("SOUR:FREQ?")) == 2000.0  # the message still ran
+    rig.gen.write("STIM:TONE 2000")
+    assert float(rig.gen.query("STIM:TONE?")) == 2000.0  # the message still ran
     assert rig.gen.query("SYST:ERR?") == '-310,"System error"'
     assert rig.gen.query("SYST:ERR?") == '0,"No error"'  # one-shot
 
@@ -80,48 +80,48 @@ def test_fault_truncates_the_next_block(open_rig):
     rig = open_rig(rc_lowpass(), faults=plan)
     a = rig.scope_a
     a.timeout = 500  # ms
-    assert a.query(":WAV:FORM?") == "WORD"  # not a block: the rule stays armed
+    assert a.query("CAPT:WIDT?") == "16"  # not a block: the rule stays armed
     rig.drive(997.0, amplitude_vpp=1.0)
-    a.write(":ACQ:POIN 2000")
-    a.write(":SINGle")
+    a.write("CAPT:LENG 2000")
+    a.write("CAPTure:TAKE")
     before = rig.bench.clock.now_s()
     with pytest.raises(VisaIOError) as info:
-        a.query_binary_values(":WAV:DATA?", datatype="h", container=np.array)
+        a.query_binary_values("LANE1:BLOC?", datatype="h", container=np.array)
     assert info.value.error_code == constants.StatusCode.error_timeout
     assert rig.bench.clock.now_s() - before >= 0.5  # the wait for the missing half, in simulated time
     a.clear()
-    intact = a.query_binary_values(":WAV:DATA?", datatype="h", container=np.array)
+    intact = a.query_binary_values("LANE1:BLOC?", datatype="h", container=np.array)
     assert len(intact) == 2000
 
 
 def test_fault_delays_the_answer(open_rig):
-    plan = FaultPlan().delay_answer(GENERATOR_RESOURCE, 0.3, contains="FREQ?")
-    plan.delay_answer(GENERATOR_RESOURCE, 5.0, contains="VOLT?")
+    plan = FaultPlan().delay_answer(GENERATOR_RESOURCE, 0.3, contains="TONE?")
+    plan.delay_answer(GENERATOR_RESOURCE, 5.0, contains="SWIN?")
     rig = open_rig(divider(1e3, 1e3), faults=plan)
     g = rig.gen
     g.timeout = 1000  # ms
     before = rig.bench.clock.now_s()
-    assert float(g.query("SOUR:FREQ?")) == 1000.0  # late but within the timeout
+    assert float(g.query("STIM:TONE?")) == 1000.0  # late but within the timeout
     assert rig.bench.clock.now_s() - before >= 0.3
     with pytest.raises(VisaIOError) as info:
-        g.query("SOUR:VOLT?")  # 5 s late: the read times out after 1 s
+        g.query("STIM:SWIN?")  # 5 s late: the read times out after 1 s
     assert info.value.error_code == constants.StatusCode.error_timeout
     rig.bench.clock.sleep(5.0)
     assert float(g.read()) == 0.1  # the late answer is still there for whoever reads next
 
 
 def test_fault_drops_the_session_and_a_new_one_works(open_rig):
-    plan = FaultPlan().drop_session(METER_RESOURCE, contains="INIT")
+    plan = FaultPlan().drop_session(METER_RESOURCE, contains="DET:RUN")
     rig = open_rig(divider(1e3, 1e3), faults=plan)
-    rig.meter.write("SENS:BAND 100")
+    rig.meter.write("DET:WIDT 100")
     with pytest.raises(VisaIOError) as info:
-        rig.meter.write("INIT")
+        rig.meter.write("DET:RUN")
     assert info.value.error_code == constants.StatusCode.error_connection_lost
     with pytest.raises(VisaIOError):
         rig.meter.query("*IDN?")
     rig.meter.close()
     meter = rig.gen.visalib.resource_manager.open_resource(METER_RESOURCE, **TERMINATION)
-    assert float(meter.query("SENS:BAND?")) == 100.0  # the instrument kept its settings
+    assert float(meter.query("DET:WIDT?")) == 100.0  # the instrument kept its settings
 
 
 def test_fault_drops_an_answer_and_corrupts_a_block(open_rig):
@@ -130,12 +130,12 @@ def test_fault_drops_an_answer_and_corrupts_a_block(open_rig):
     rig.gen.timeout = 200
     with pytest.raises(VisaIOError):
         rig.gen.query("*IDN?")
-    assert rig.gen.query("*IDN?").startswith("Sweeper Sim,FG-1")
+    assert rig.gen.query("*IDN?").startswith("Sweeper Sim,STIM-1")
     rig.drive(997.0, amplitude_vpp=1.0)
     a = rig.scope_a
-    a.write(":ACQ:POIN 1000")
-    a.write(":SINGle")
-    a.write(":WAV:FORM BYTE")
-    corrupted = a.query_binary_values(":WAV:DATA?", datatype="b", container=np.array)
-    clean = a.query_binary_values(":WAV:DATA?", datatype="b", container=np.array)
+    a.write("CAPT:LENG 1000")
+    a.write("CAPTure:TAKE")
+    a.write("CAPT:WIDT 8")
+    corrupted = a.query_binary_values("LANE1:BLOC?", datatype="b", container=np.array)
+    clean = a.query_binary_values("LANE1:BLOC?", datatype="b", container=np.array)
     assert np.count_nonzero(corrupted != clean) == 4

@@ -26,13 +26,13 @@ def test_meter_matches_the_rc_lowpass_response(open_rig, frequency_hz):
     rig = open_rig(rc_lowpass(), noise_v=noise_v, seed=11)
     rig.drive(frequency_hz, amplitude_vpp=2.0)
     m = rig.meter
-    m.write("SENS:BAND 10")
-    m.write("INIT")
+    m.write("DET:WIDT 10")
+    m.write("DET:RUN")
     assert m.query("*OPC?") == "1"
-    gain_db = float(m.query("FETCh:GAIN?"))
-    phase_deg = float(m.query("FETC:PHAS?"))
-    amplitude_in_v = float(m.query("FETC:AMPL? CH1"))
-    amplitude_out_v = float(m.query("FETCh:AMPLitude? CH2"))
+    gain_db = float(m.query("RESult:GAIN?"))
+    phase_deg = float(m.query("RES:PHAS?"))
+    amplitude_in_v = float(m.query("RES:PEAK1?"))
+    amplitude_out_v = float(m.query("RESult:PEAK2?"))
 
     # Reference library: scipy.signal.freqs of H(s) = 1 / (R C s + 1) (handbook first-order low-pass).
     _, h = signal.freqs([1.0], [R_LOWPASS_OHM * C_LOWPASS_F, 1.0], worN=[2 * math.pi * frequency_hz])
@@ -54,13 +54,13 @@ def test_meter_noise_grows_with_bandwidth_and_narrow_bandwidth_takes_longer(open
     m = rig.meter
     spreads, durations = {}, {}
     for bandwidth_hz in (1.0, 1000.0):
-        m.write(f"SENSe:BANDwidth {bandwidth_hz}")
+        m.write(f"DETector:WIDTh {bandwidth_hz}")
         readings = []
         for _ in range(20):
             before = rig.bench.clock.now_s()
-            m.write("INIT")
+            m.write("DET:RUN")
             durations[bandwidth_hz] = rig.bench.clock.now_s() - before
-            readings.append(float(m.query("FETC:AMPL? CH1")))
+            readings.append(float(m.query("RES:PEAK1?")))
         spreads[bandwidth_hz] = np.std(readings, ddof=1)
     # Noise density model: sigma ~ sqrt(B); sqrt(1000 / 1) = 31.6. With 20 readings a sample
     # standard deviation is within about 3 x 16 % of its true value, so the ratio lies in [20, 50].
@@ -75,5 +75,5 @@ def test_meter_noise_grows_with_bandwidth_and_narrow_bandwidth_takes_longer(open
 def test_meter_fetch_before_a_measurement_is_stale(open_rig):
     rig = open_rig(rc_lowpass())
     m = rig.meter
-    assert float(m.query("FETC:GAIN?")) == 9.91e37  # SCPI "not a number"
+    assert float(m.query("RES:GAIN?")) == 9.91e37  # SCPI "not a number"
     assert m.query("SYST:ERR?") == '-230,"Data corrupt or stale"'

@@ -1,7 +1,7 @@
 """Scope captures through the DUT, checked against circuit handbook formulas and Ohm's law.
 
 Every capture goes through real pyvisa sessions (query_binary_values / query_ascii_values)
-and is scaled with the instrument's own preamble. Tolerances are 5 standard deviations of
+and is scaled with the instrument's own scaling answers. Tolerances are 5 standard deviations of
 the fitted quantity, from the Cramer-Rao bound of a sine fit, sqrt(2 / M) * sigma (Andersson
 and Handel), with sigma combining the configured white noise and the 8-bit quantisation noise
 lsb / sqrt(12).
@@ -102,7 +102,7 @@ def test_scope_b_ascii_path_gives_the_same_answer_as_a(open_rig):
     assert b[1] == pytest.approx(-45.0, abs=5 * math.degrees(rel_b))
 
 
-@pytest.mark.parametrize(("load", "expected_peak_v"), [("50", 0.5), ("INF", 0.25)])
+@pytest.mark.parametrize(("load", "expected_peak_v"), [("50", 0.5), ("HIZ", 0.25)])
 def test_load_setting_50_ohm_doubles_the_emf(open_rig, load, expected_peak_v):
     # A 50 Ohm DUT input (25 + 25 Ohm divider). Common practice: with the generator's load set
     # to 50 Ohm, the displayed 1 Vpp is what a 50 Ohm load sees (0.5 V peak), because the EMF is
@@ -117,13 +117,10 @@ def test_load_setting_50_ohm_doubles_the_emf(open_rig, load, expected_peak_v):
 def test_clipping_when_the_range_is_too_small(open_rig):
     rig = open_rig(divider(1e3, 1e3), noise_v=NOISE_V, seed=5)
     rig.drive(997.0, amplitude_vpp=2.0)
-    rig.capture_a((0.01, 0.2), sample_rate_hz=1e5, points=10_000, fmt="BYTE")  # channel 1: +-40 mV screen
+    rig.capture_a((0.01, 0.2), sample_rate_hz=1e5, points=10_000, width_bits=8)  # lane 1: +-40 mV screen
     s = rig.scope_a
-    s.write(":WAV:FORM BYTE")
-    s.write(":WAV:SOUR CHAN1")
-    codes_in = s.query_binary_values(":WAV:DATA?", datatype="b", container=np.array)
-    s.write(":WAV:SOUR CHAN2")
-    codes_out = s.query_binary_values(":WAV:DATA?", datatype="b", container=np.array)
+    codes_in = s.query_binary_values("LANE1:BLOC?", datatype="b", container=np.array)
+    codes_out = s.query_binary_values("LANE2:BLOC?", datatype="b", container=np.array)
     # DIALECTS.md: the ADC clips at the screen edges, codes -128 and +127.
     assert codes_in.min() == -128 and codes_in.max() == 127
     # Geometry of a sine of amplitude A through a window +-W: the fraction of time outside is
@@ -144,15 +141,15 @@ def test_offset_setting_and_ac_coupling(open_rig):
     sigma = amplitude_sigma_v(NOISE_V, 8 * 0.05 / 256, 10_000)
     s = rig.scope_a
     # DC coupling, screen centred on +1 V: the whole signal is on screen.
-    s.write(":CHAN1:OFFS 1.0")
+    s.write("LANE1:CENT 1.0")
     volts, dt = rig.capture_a((0.05, 0.05), sample_rate_hz=1e5, points=10_000)
     phasors, dc = fit_sine(volts[0], dt, 997.0)
     assert dc == pytest.approx(dc_in_v, abs=5 * sigma)
     assert abs(phasors[0]) == pytest.approx(0.1 * dc_in_v, abs=5 * sigma)
     # AC coupling removes the DC level: centred on 0 V the same range holds the signal.
-    s.write(":CHAN1:OFFS 0")
-    s.write(":CHAN1:COUP AC")
-    assert s.query(":CHAN1:COUP?") == "AC"
+    s.write("LANE1:CENT 0")
+    s.write("LANE1:COUP AC")
+    assert s.query("LANE1:COUP?") == "AC"
     volts, dt = rig.capture_a((0.05, 0.05), sample_rate_hz=1e5, points=10_000)
     phasors, dc = fit_sine(volts[0], dt, 997.0)
     assert dc == pytest.approx(0.0, abs=5 * sigma)
@@ -189,22 +186,21 @@ def test_source_distortion_passes_through_the_dut_at_its_own_frequency(open_rig)
 
 
 def test_a_setting_changed_after_the_acquisition_makes_its_data_stale(open_rig):
-    # DIALECTS.md (clarifications): the preamble describes current settings, so data taken with
+    # DIALECTS.md (clarifications): the legend describes current settings, so data taken with
     # other settings is refused rather than scaled wrongly.
     rig = open_rig(divider(1e3, 1e3), noise_v=NOISE_V, seed=8)
     rig.drive(997.0, amplitude_vpp=1.0)
     rig.capture_a((0.5, 0.5), sample_rate_hz=1e5, points=2000)
     a = rig.scope_a
-    a.write(":WAV:SOUR CHAN1")
-    a.write(":WAV:FORM BYTE")  # encoding and source do not invalidate the data
-    assert len(a.query_binary_values(":WAV:DATA?", datatype="b")) == 2000
-    a.write(":CHAN2:SCAL 0.5")  # same value: nothing changes
-    assert len(a.query_binary_values(":WAV:DATA?", datatype="b")) == 2000
-    a.write(":CHAN2:SCAL 1")
-    assert a.query_binary_values(":WAV:DATA?", datatype="b") == []
+    a.write("CAPT:WIDT 8")  # the transfer width does not invalidate the data
+    assert len(a.query_binary_values("LANE1:BLOC?", datatype="b")) == 2000
+    a.write("LANE2:DIV 0.5")  # same value: nothing changes
+    assert len(a.query_binary_values("LANE1:BLOC?", datatype="b")) == 2000
+    a.write("LANE2:DIV 1")
+    assert a.query_binary_values("LANE1:BLOC?", datatype="b") == []
     assert a.query("SYST:ERR?") == '-230,"Data corrupt or stale"'
     b = rig.scope_b
     rig.capture_b((0.5, 0.5), seconds_per_div=1e-3, record=1000)
-    b.write("HOR:SCA 2e-3")
-    assert b.query("CURV?") == ""
+    b.write("FRAM:PITC 2e-3")
+    assert b.query("LIST:COD?") == ""
     assert b.query("SYST:ERR?") == '-230,"Data corrupt or stale"'

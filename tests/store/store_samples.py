@@ -98,9 +98,9 @@ def rc_prediction(frequency_hz: np.ndarray) -> dict[str, np.ndarray]:
 def identities() -> list[Identity]:
     """The simulated bench of the demo plan (IDN strings from sweeper/sim/DIALECTS.md)."""
     return [
-        Identity("source", "TCPIP0::sim-gen::5025::SOCKET", "Sweeper Sim,FG-1,SIM-FG-0001,1.0",
+        Identity("source", "TCPIP0::sim-gen::5025::SOCKET", "Sweeper Sim,STIM-1,SIM-ST-0001,1.0",
                  "sim-generator.yaml", hashlib.sha256(b"invented generator driver").hexdigest()),
-        Identity("scope", "TCPIP0::sim-scope-a::5025::SOCKET", "Sweeper Sim,DSO-A2,SIM-SA-0001,1.0",
+        Identity("scope", "TCPIP0::sim-scope-a::5025::SOCKET", "Sweeper Sim,CAP-2A,SIM-CA-0001,1.0",
                  "sim-scope-a.yaml", hashlib.sha256(b"invented scope driver").hexdigest()),
     ]
 

@@ -42,7 +42,7 @@ def served(tmp_path_factory: pytest.TempPathFactory):
 def test_instruments_finds_loopback_servers_and_names_their_drivers(served) -> None:
     ports = sorted(served.ports.values())
     span = f"{ports[0] - 1}-{ports[-1] + 1}"  # the four servers and a silent port either side
-    code, out, err = sweeper_in_process("instruments", "--no-list", "--scan-local", span, "--timeout", "2", "--json")
+    code, out, err = sweeper_in_process("instruments", "--scan-local", span, "--timeout", "2", "--json")
     assert code == 0, err
     found = {item["resource"]: item for item in json.loads(out)}
     assert len(found) == 4  # only the listening ports were asked
@@ -55,10 +55,10 @@ def test_instruments_finds_loopback_servers_and_names_their_drivers(served) -> N
 
 def test_instruments_probe_prints_a_table_and_reports_silence(served, tmp_path: Path) -> None:
     silent = "TCPIP0::127.0.0.1::9::SOCKET"  # discard port: nothing listens on loopback here
-    code, out, err = sweeper_in_process("instruments", "--no-list", "--probe", served.resources["meter"],
+    code, out, err = sweeper_in_process("instruments", "--probe", served.resources["meter"],
                                         "--probe", silent, "--timeout", "0.5")
     assert code == 0, err
-    assert "Sweeper Sim,GPM-1" in out and "sim-meter.yaml" in out
+    assert "Sweeper Sim,RATIO-1" in out and "sim-meter.yaml" in out
     assert re.search(r"cannot open|no answer", out)
 
 
@@ -70,8 +70,71 @@ def test_instruments_on_the_simulated_backend_lists_all_four() -> None:
     assert len(found) == 4
 
 
+#: Run in a fresh interpreter: record every destination Python's socket layer is asked to reach
+#: (PEP 578 audit events socket.connect, socket.sendto, socket.sendmsg, and the host names it
+#: resolves, socket.getaddrinfo / gethostbyname), then run `sweeper instruments` with the
+#: arguments given, and print what was recorded as JSON on the last line of stderr. A loopback
+#: UDP datagram sent first proves the hook sees sendto (the way LAN broadcasts go out).
+AUDITED = """
+import json, socket, sys
+seen = []
+def hook(event, args):
+    if event in ("socket.connect", "socket.sendto", "socket.sendmsg"):
+        seen.append([event, repr(args[1]) if not isinstance(args[1], (tuple, str)) else args[1]])
+    elif event in ("socket.getaddrinfo", "socket.gethostbyname"):
+        seen.append([event, args[0]])
+sys.addaudithook(hook)
+probe = socket.socket(socket.AF_INET, socket.SOCK_DGRAM)
+probe.sendto(b"audit self-test", ("127.0.0.1", 9))
+probe.close()
+from sweeper.cli import main
+code = 1
+try:
+    main(sys.argv[1:], standalone_mode=True)
+except SystemExit as exc:
+    code = exc.code
+finally:
+    print(json.dumps(seen, default=str), file=sys.stderr)
+sys.exit(code)
+"""
+LOOPBACK = {"127.0.0.1", "::1", "localhost"}
+
+
+def audited_destinations(*args: str) -> tuple[int, list[list]]:
+    done = subprocess.run([sys.executable, "-c", AUDITED, *args], capture_output=True, text=True, timeout=120)
+    return done.returncode, json.loads(done.stderr.strip().splitlines()[-1])
+
+
+def is_loopback(event: str, target: object) -> bool:
+    if isinstance(target, str):  # a unix socket path, or a host name being resolved
+        return target in LOOPBACK if event.startswith("socket.get") else True
+    host = target[0] if isinstance(target, (list, tuple)) else target
+    return host in LOOPBACK
+
+
+def test_default_discovery_sends_nothing_beyond_loopback(served) -> None:
+    # The network rule of the project: defaults send nothing off the machine. `instruments`
+    # with no options on the default backend (pyvisa-py, whose own listing broadcasts on the
+    # LAN) must not list through the backend; with --scan-local it talks to loopback only.
+    code, seen = audited_destinations("instruments")
+    assert code == 0
+    assert seen[0][0] == "socket.sendto" and tuple(seen[0][1]) == ("127.0.0.1", 9)  # the hook works
+    assert all(is_loopback(event, target) for event, target in seen), seen
+    ports = sorted(served.ports.values())
+    code, seen = audited_destinations("instruments", "--scan-local", f"{ports[0]}-{ports[-1]}", "--json")
+    assert code == 0
+    connects = [target for event, target in seen if event == "socket.connect"]
+    assert len(connects) >= 8  # each port tried once, then asked *IDN? by pyvisa-py
+    assert all(is_loopback(event, target) for event, target in seen), seen
+
+
+def test_instruments_help_says_lan_discovery_needs_lan() -> None:
+    code, out, _ = sweeper_in_process("instruments", "--help")
+    assert code == 0 and "--lan" in out and "broadcasts" in out and "--list" not in out
+
+
 def test_instruments_rejects_bad_options() -> None:
-    code, _, err = sweeper_in_process("instruments", "--no-list", "--scan-local", "5025-x")
+    code, _, err = sweeper_in_process("instruments", "--scan-local", "5025-x")
     assert code == 2 and "--scan-local" in err
     code, _, err = sweeper_in_process("instruments", "--backend", "/nonexistent/libvisa.so")
     assert code == 2 and "not found" in err
@@ -177,7 +240,7 @@ def test_bench_serve_command_serves_until_terminated(tmp_path: Path) -> None:
         try:
             gen = rm.open_resource(resources["generator"], read_termination="\n", write_termination="\n",
                                    timeout=2000)
-            assert gen.query("*IDN?").startswith("Sweeper Sim,FG-1,")
+            assert gen.query("*IDN?").startswith("Sweeper Sim,STIM-1,")
         finally:
             rm.close()
         proc.send_signal(signal.SIGTERM)

@@ -41,17 +41,17 @@ ABORT = ("faults:\n"
 
 NETWORK_FAULTS: dict[str, tuple[Callable[[NetFaultPlan], object], str]] = {
     # name: (how to inject it, what the run reports when it stops on it)
-    "dropped connection": (lambda f: f.drop_connection("scope-a", contains="WAV:DATA", after=BLOCKS_BEFORE_FAULT),
+    "dropped connection": (lambda f: f.drop_connection("scope-a", contains=":BLOC?", after=BLOCKS_BEFORE_FAULT),
                            "connection"),
     # an orderly close (FIN): pyvisa-py sees no more bytes, so it reads as a timeout; its device
     # clear would spin forever on the closed socket without sweeper.instruments.transport
-    "closed connection": (lambda f: f.drop_connection("scope-a", contains="WAV:DATA", after=BLOCKS_BEFORE_FAULT,
+    "closed connection": (lambda f: f.drop_connection("scope-a", contains=":BLOC?", after=BLOCKS_BEFORE_FAULT,
                                                       reset=False), "timeout"),
-    "stall": (lambda f: f.stall("scope-a", 5.0, contains="WAV:DATA", after=BLOCKS_BEFORE_FAULT), "timeout"),
-    "block cut short": (lambda f: f.cut_block("scope-a", 0.5, contains="WAV:DATA", after=BLOCKS_BEFORE_FAULT),
+    "stall": (lambda f: f.stall("scope-a", 5.0, contains=":BLOC?", after=BLOCKS_BEFORE_FAULT), "timeout"),
+    "block cut short": (lambda f: f.cut_block("scope-a", 0.5, contains=":BLOC?", after=BLOCKS_BEFORE_FAULT),
                         "truncated block"),
     # pieces 0.7 s apart: a read waiting for the next one outlasts the 0.5 s session timeout
-    "trickle with long gaps": (lambda f: f.trickle("scope-a", 4096, 0.7, contains="WAV:DATA",
+    "trickle with long gaps": (lambda f: f.trickle("scope-a", 4096, 0.7, contains=":BLOC?",
                                                    after=BLOCKS_BEFORE_FAULT), "truncated block"),
 }
 
@@ -123,7 +123,7 @@ def test_network_fault_under_the_default_policies_is_handled(tmp_path: Path, nam
 def test_slow_trickle_within_the_timeout_loses_nothing(tmp_path: Path) -> None:
     # 1 kB pieces 10 ms apart: a block of 8-15 kB arrives in 16 pieces or fewer, within 0.16 s,
     # so inside the 0.5 s timeout of each VISA read; the block is reassembled and the sweep goes on.
-    outcome, output_on = _run(tmp_path, lambda f: f.trickle("scope-a", 1024, 0.01, contains="WAV:DATA",
+    outcome, output_on = _run(tmp_path, lambda f: f.trickle("scope-a", 1024, 0.01, contains=":BLOC?",
                                                             after=BLOCKS_BEFORE_FAULT))
     assert outcome.status == "complete", outcome.error
     assert len(outcome.points) == POINTS and not output_on
@@ -134,15 +134,15 @@ def test_slow_trickle_within_the_timeout_loses_nothing(tmp_path: Path) -> None:
 def test_dropped_generator_connection_still_ends_with_output_off(tmp_path: Path) -> None:
     # The source's own link breaks and the policy stops the run: the bench opens a fresh session
     # to the generator to switch its output off.
-    outcome, output_on = _run(tmp_path, lambda f: f.drop_connection("generator", contains="SOUR:FREQ", after=4),
+    outcome, output_on = _run(tmp_path, lambda f: f.drop_connection("generator", contains="STIM:TONE", after=4),
                               extra=ABORT, faulted=("generator",))
-    _assert_stopped_with_data_kept(outcome, output_on, "sour:freq")
+    _assert_stopped_with_data_kept(outcome, output_on, "stim:tone")
 
 
 @pytest.mark.parametrize("reset", [True, False])
 def test_cli_run_exits_3_without_traceback_on_a_network_fault(tmp_path: Path, reset: bool) -> None:
     dut = rc_plan(tmp_path / "dut.yaml")
-    faults = NetFaultPlan().drop_connection("scope-a", contains="WAV:DATA", after=BLOCKS_BEFORE_FAULT, reset=reset)
+    faults = NetFaultPlan().drop_connection("scope-a", contains=":BLOC?", after=BLOCKS_BEFORE_FAULT, reset=reset)
     with serve_bench(sim_config(dut), instruments=("generator", "scope-a"), faults=faults) as served:
         plan_path = tmp_path / "plan.yaml"
         plan_path.write_text(loopback_plan(plan_path, served.resources, timeout_s=TIMEOUT_S, extra=ABORT).source_text)

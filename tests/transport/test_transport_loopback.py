@@ -77,14 +77,14 @@ def test_million_sample_int16_block_arrives_intact(tmp_path: Path) -> None:
         try:
             gen = rm.open_resource(served.resources["generator"], read_termination="\n", write_termination="\n",
                                    timeout=5000)
-            gen.write("SOUR:VOLT 2;SOUR:FREQ 1000;OUTP ON")
+            gen.write("STIM:SWIN 2;STIM:TONE 1000;DRIV:ENAB ON")
             driver = load_driver(find_driver("sim-scope-a.yaml", [repository_drivers_dir()])).driver
             scope = rm.open_resource(served.resources["scope-a"], read_termination="\n", write_termination="\n",
                                      timeout=20000, chunk_size=driver.connection.chunk_size)
             link = Link(scope, "scope")
-            link.write(f":CHAN1:SCAL 0.5;:ACQ:SRAT 1e6;:ACQ:POIN {samples};:WAV:FORM WORD;:WAV:SOUR CHAN1")
-            assert link.query(":SING;*OPC?") == "1"
-            payload = link.query_block(":WAV:DATA?")
+            link.write(f"LANE1:DIV 0.5;CAPT:RATE 1e6;CAPT:LENG {samples};CAPT:WIDT 16")
+            assert link.query("CAPT:TAKE;*OPC?") == "1"
+            payload = link.query_block("LANE1:BLOC?")
             assert link.query("SYST:ERR?") == '0,"No error"'
         finally:
             rm.close()
@@ -171,6 +171,6 @@ def test_simulated_config_is_shared_physics(tmp_path: Path) -> None:
         try:
             meter = rm.open_resource(served.resources["meter"], read_termination="\n", write_termination="\n",
                                      timeout=2000)
-            assert meter.query("*IDN?") == "Sweeper Sim,GPM-1,SIM-GP-0001,1.0"  # DIALECTS.md
+            assert meter.query("*IDN?") == "Sweeper Sim,RATIO-1,SIM-RA-0001,1.0"  # DIALECTS.md
         finally:
             rm.close()

@@ -68,14 +68,14 @@ def test_simulated_scope_a_measures_its_own_acquisition(tmp_path: Path) -> None:
         term = dict(read_termination="\n", write_termination="\n")
         gen = rm.open_resource(GENERATOR_RESOURCE, **term)
         scope = rm.open_resource(SCOPE_A_RESOURCE, **term)
-        assert scope.query(":MEAS:VAMP? CHAN1") == "9.91E+37"  # no acquisition yet (DIALECTS.md)
+        assert scope.query("GAUG:SWIN? LANE1") == "9.91E+37"  # no acquisition yet (DIALECTS.md)
         assert scope.query("SYST:ERR?") == '-230,"Data corrupt or stale"'
-        gen.write("SOUR:VOLT 2;SOUR:FREQ 1000;OUTP ON")
-        scope.write(":CHAN1:SCAL 0.25;:CHAN2:SCAL 0.25;:ACQ:SRAT 1e6;:ACQ:POIN 20000")
-        assert scope.query(":SING;*OPC?") == "1"
-        vpp_in = float(scope.query(":MEAS:VAMP? CHAN1"))
-        vpp_out = float(scope.query(":MEAS:VAMP? CHAN2"))
-        phase = float(scope.query(":MEAS:PHAS? CHAN1,CHAN2"))
+        gen.write("STIM:SWIN 2;STIM:TONE 1000;DRIV:ENAB ON")
+        scope.write("LANE1:DIV 0.25;LANE2:DIV 0.25;CAPT:RATE 1e6;CAPT:LENG 20000")
+        assert scope.query("CAPT:TAKE;*OPC?") == "1"
+        vpp_in = float(scope.query("GAUG:SWIN? LANE1"))
+        vpp_out = float(scope.query("GAUG:SWIN? LANE2"))
+        phase = float(scope.query("GAUG:PHAS? LANE1,LANE2"))
         assert scope.query("SYST:ERR?") == '0,"No error"'
     finally:
         rm.close()

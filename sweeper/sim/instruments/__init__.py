@@ -6,6 +6,6 @@ from sweeper.sim.instruments.scope_a import ScopeA
 from sweeper.sim.instruments.scope_b import ScopeB
 
 # devices.yaml device name -> model class
-MODELS = {"FG-1": Generator, "DSO-A2": ScopeA, "DSO-B2": ScopeB, "GPM-1": Meter}
+MODELS = {"STIM-1": Generator, "CAP-2A": ScopeA, "SNAP-2B": ScopeB, "RATIO-1": Meter}
 
 __all__ = ["MODELS", "Generator", "Meter", "ScopeA", "ScopeB"]

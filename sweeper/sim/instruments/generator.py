@@ -1,4 +1,4 @@
-"""Function generator FG-1 (DIALECTS.md): its SCPI front end over the bench's generator state."""
+"""Sine source STIM-1 (DIALECTS.md): its SCPI front end over the bench's generator state."""
 
 from __future__ import annotations
 
@@ -18,27 +18,27 @@ LOAD_MAX_OHM = 10e3
 
 
 class Generator(ScpiInstrument):
-    """FG-1: one sine channel; settings live in bench.generator so the scopes can see them."""
+    """STIM-1: one sine channel; settings live in bench.generator so the scopes can see them."""
 
     def __init__(self, bench: SimBench) -> None:
         super().__init__()
         self.bench = bench
-        self.add("SOURce:FUNCtion", setter=self._set_function, getter=lambda s, p: self.bench.generator.function)
-        self.add("SOURce:FREQuency", setter=self._set_frequency, getter=lambda s, p: format_number(self.bench.generator.frequency_hz))
-        self.add("SOURce:VOLTage", setter=self._set_amplitude, getter=lambda s, p: format_number(self.bench.generator.amplitude_vpp))
-        self.add("SOURce:VOLTage:OFFSet", setter=self._set_offset, getter=lambda s, p: format_number(self.bench.generator.offset_v))
-        self.add("OUTPut:LOAD", setter=self._set_load, getter=self._load_query)
-        self.add("OUTPut", setter=self._set_output, getter=lambda s, p: "1" if self.bench.generator.output_on else "0")
+        self.add("STIMulus:FORM", setter=self._set_form, getter=lambda s, p: self.bench.generator.function)
+        self.add("STIMulus:TONE", setter=self._set_frequency, getter=lambda s, p: format_number(self.bench.generator.frequency_hz))
+        self.add("STIMulus:SWINg", setter=self._set_amplitude, getter=lambda s, p: format_number(self.bench.generator.amplitude_vpp))
+        self.add("STIMulus:BIAS", setter=self._set_offset, getter=lambda s, p: format_number(self.bench.generator.offset_v))
+        self.add("DRIVe:INTO", setter=self._set_load, getter=self._load_query)
+        self.add("DRIVe:ENABle", setter=self._set_output, getter=lambda s, p: "1" if self.bench.generator.output_on else "0")
 
     def reset(self) -> None:
-        """*RST: 1 kHz sine, 100 mVpp, no offset, high-Z load setting, output off."""
+        """*RST: 1 kHz sine, 100 mVpp, no bias, drive setting HIZ (high impedance), output disabled."""
         self.bench.set_generator(**vars(GeneratorSettings()))
 
     def _scale(self) -> float:
         return physics.emf_per_displayed_volt(self.bench.generator.load_ohm)
 
-    def _set_function(self, suffixes: tuple[int, ...], params: list[str]) -> None:
-        self.bench.set_generator(function=parse_choice(self.one_param(params), {"SINusoid": "SIN"}))
+    def _set_form(self, suffixes: tuple[int, ...], params: list[str]) -> None:
+        self.bench.set_generator(function=parse_choice(self.one_param(params), {"SINE": "SINE"}))
 
     def _set_frequency(self, suffixes: tuple[int, ...], params: list[str]) -> None:
         value = parse_number(self.one_param(params))
@@ -57,7 +57,7 @@ class Generator(ScpiInstrument):
     def _set_load(self, suffixes: tuple[int, ...], params: list[str]) -> None:
         text = self.one_param(params)
         try:
-            load = math.inf if parse_choice(text, {"INFinity": "INF"}) == "INF" else 0.0
+            load = math.inf if parse_choice(text, {"HIZ": "HIZ"}) == "HIZ" else 0.0
         except ScpiError:
             load = self.clamp(parse_number(text), LOAD_MIN_OHM, LOAD_MAX_OHM)
         g = self.bench.generator
@@ -70,7 +70,7 @@ class Generator(ScpiInstrument):
 
     def _load_query(self, suffixes: tuple[int, ...], params: list[str]) -> str:
         load = self.bench.generator.load_ohm
-        return "INF" if math.isinf(load) else format_number(load)
+        return "HIZ" if math.isinf(load) else format_number(load)
 
     def _set_output(self, suffixes: tuple[int, ...], params: list[str]) -> None:
         self.bench.set_generator(output_on=parse_bool(self.one_param(params)))
