@@ -16,11 +16,11 @@ from sweeper.analysis.extract import (
     ExtractionError,
     FittedParameter,
     PartHypothesis,
-    extract,
     extraction_rows,
     fit_parts,
     format_value,
 )
+from sweeper.analysis.run_fit import extract
 
 __all__ = [
     "Drift",

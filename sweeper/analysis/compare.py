@@ -15,8 +15,8 @@ from datetime import UTC, datetime
 
 import numpy as np
 
-from sweeper.verdict import wrap_deg
 from sweeper.analysis.figures import interpolate_log_f, sorted_finite, unwrap_deg
+from sweeper.verdict import wrap_deg
 
 
 @dataclass(frozen=True)

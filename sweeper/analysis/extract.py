@@ -57,8 +57,8 @@ from scipy import optimize, stats
 
 from sweeper.circuits import COMPONENTS, Loading, build_circuit
 from sweeper.circuits.figures import corner_analytic_hz, f0_hz, q_factor
-from sweeper.verdict import wrap_deg
 from sweeper.measure.point import Flag
+from sweeper.verdict import wrap_deg
 
 LEVEL = 0.95  # confidence level of every interval
 U_FLOOR_GAIN_DB = 1e-4  # smallest gain uncertainty used as a weight, dB (a noise-free simulated sweep reports ~0)
@@ -624,37 +624,6 @@ def fit_parts(
     )
 
 
-def extract(frame: Any, metadata: Mapping[str, Any], *, reference: str | None = None) -> Extraction:
-    """Fit the run's plan model to its points (frame columns frequency_hz, gain_db, phase_deg,
-    u_gain_db, u_phase_deg, flags); the plan is re-read from metadata["plan_yaml"].
-
-    Raises ExtractionError when the run holds no readable plan or the model cannot be fitted.
-    """
-    from sweeper.plan import PlanError, load_plan_text
-    from sweeper.verdict.prediction import model_loading, nominal_values, tolerances
-
-    text = metadata.get("plan_yaml")
-    if not isinstance(text, str) or not text.strip():
-        raise ExtractionError("the run holds no plan text (metadata plan_yaml)")
-    try:
-        plan = load_plan_text(text, f"{metadata.get('run_id') or 'run'}:plan")
-    except PlanError as exc:
-        first = exc.problems[0] if exc.problems else "invalid plan"
-        raise ExtractionError(f"the run's plan cannot be re-read: {first}") from None
-    columns = {name: frame[name].to_numpy() for name in
-               ("frequency_hz", "gain_db", "phase_deg", "u_gain_db", "u_phase_deg") if name in frame}
-    missing = [n for n in ("frequency_hz", "gain_db", "phase_deg") if n not in columns]
-    if missing:
-        raise ExtractionError(f"the points lack {', '.join(missing)}")
-    n = len(columns["frequency_hz"])
-    return fit_parts(
-        columns["frequency_hz"], columns["gain_db"], columns["phase_deg"],
-        columns.get("u_gain_db", np.full(n, np.nan)), columns.get("u_phase_deg", np.full(n, np.nan)),
-        plan.model.circuit, nominal_values(plan.model), tolerances(plan.model), model_loading(plan.model),
-        flags=frame["flags"].to_numpy() if "flags" in frame else None, reference=reference,
-    )
-
-
 def extraction_rows(extraction: Extraction) -> list[dict[str, Any]]:
     """The parameters as plain rows (for tables and JSON): name, kind, unit, value, low, high,
     nominal, tolerance_low, tolerance_high, deviation_frac, verdict, condition."""
@@ -674,7 +643,6 @@ __all__ = [
     "Quantity",
     "choose_reference",
     "coverage_factor",
-    "extract",
     "extraction_rows",
     "fit_parts",
     "fittable_parts",

@@ -18,7 +18,6 @@ from __future__ import annotations
 from collections.abc import Mapping
 from typing import TYPE_CHECKING
 
-from sweeper.circuits.catalog import COMPONENTS
 from sweeper.plan.units import parse_quantity
 
 if TYPE_CHECKING:
@@ -31,7 +30,7 @@ def sim_component_values(plan: Plan, components: Mapping[str, float | str]) -> d
     """Part values for the plan's circuit in SI units (Ohm, F, H): numbers as given, text such as
     '120 nF' parsed with the component's unit kind. Raises ValueError for an unknown part name,
     a value of the wrong kind, or a non-positive value."""
-    specs = {spec.name: spec for spec in COMPONENTS[plan.model.circuit]}
+    specs = {spec.name: spec for spec in plan.model.part_specs()}
     values: dict[str, float] = {}
     for name, value in components.items():
         spec = specs.get(name)

@@ -84,7 +84,17 @@ def _band(
         circuit.poles_hz,
         circuit.gain,
     )
-    h = np.atleast_2d(h)
+    return band_of_responses(frequency_hz, nominal_h, np.atleast_2d(h), percentiles)
+
+
+def band_of_responses(
+    frequency_hz: np.ndarray,
+    nominal_h: np.ndarray,
+    h: np.ndarray,
+    percentiles: tuple[float, float] | None,
+) -> Band:
+    """A band from the nominal response (F,) and off-nominal responses (K, F), complex: min/max
+    over the K when percentiles is None, else those percentiles (%); phases relative to nominal."""
     with np.errstate(divide="ignore", invalid="ignore"):
         nominal_gain_db = 20 * np.log10(np.abs(nominal_h))
         nominal_phase_deg = wrap_deg(np.degrees(np.angle(nominal_h)))
@@ -96,7 +106,30 @@ def _band(
     else:
         gain_lo, gain_hi = np.percentile(gain_db, percentiles, axis=0)
         phase_lo, phase_hi = np.percentile(phase_deg, percentiles, axis=0)
-    return Band(frequency_hz, nominal_gain_db, nominal_phase_deg, gain_lo, gain_hi, phase_lo, phase_hi)
+    return Band(np.asarray(frequency_hz, dtype=float), nominal_gain_db, nominal_phase_deg, gain_lo, gain_hi,
+                phase_lo, phase_hi)
+
+
+def check_monte_carlo(samples: int, percentiles: tuple[float, float], distribution: str) -> tuple[float, float]:
+    """Validate Monte Carlo settings (ValueError saying what was expected); the percentiles as floats."""
+    if isinstance(samples, bool) or not isinstance(samples, (int, np.integer)) or samples < 1:
+        raise ValueError(f"monte carlo: samples: given {samples!r}, expected an integer >= 1")
+    lo, hi = (float(p) for p in percentiles)
+    if not (0 <= lo <= hi <= 100) or math.isnan(lo) or math.isnan(hi):
+        raise ValueError(f"monte carlo: percentiles: given {percentiles!r}, expected 0 <= lo <= hi <= 100")
+    if distribution not in DISTRIBUTIONS:
+        raise ValueError(
+            f"monte carlo: distribution: given {distribution!r}, expected one of {', '.join(DISTRIBUTIONS)}"
+        )
+    return lo, hi
+
+
+def unit_draws(rng: np.random.Generator, distribution: str, samples: int) -> np.ndarray:
+    """Deviations in units of the tolerance, in [-1, 1]: uniform, or normal with the tolerance at
+    3 sigma, clipped to +-1."""
+    if distribution == "uniform":
+        return rng.uniform(-1.0, 1.0, samples)
+    return np.clip(rng.normal(0.0, 1.0 / 3.0, samples), -1.0, 1.0)
 
 
 def worst_case_band(
@@ -152,21 +185,10 @@ def monte_carlo_band(
     circuit, toleranced = _prepare(
         topology, nominal, tolerance, loading, {"zeros_hz": zeros_hz, "poles_hz": poles_hz, "gain": gain}
     )
-    if isinstance(samples, bool) or not isinstance(samples, (int, np.integer)) or samples < 1:
-        raise ValueError(f"monte carlo: samples: given {samples!r}, expected an integer >= 1")
-    lo, hi = (float(p) for p in percentiles)
-    if not (0 <= lo <= hi <= 100) or math.isnan(lo) or math.isnan(hi):
-        raise ValueError(f"monte carlo: percentiles: given {percentiles!r}, expected 0 <= lo <= hi <= 100")
-    if distribution not in DISTRIBUTIONS:
-        raise ValueError(
-            f"monte carlo: distribution: given {distribution!r}, expected one of {', '.join(DISTRIBUTIONS)}"
-        )
+    lo, hi = check_monte_carlo(samples, percentiles, distribution)
     rng = np.random.default_rng(seed)
-    sets = {}
-    for name, fraction in toleranced.items():
-        if distribution == "uniform":
-            unit = rng.uniform(-1.0, 1.0, samples)
-        else:
-            unit = np.clip(rng.normal(0.0, 1.0 / 3.0, samples), -1.0, 1.0)
-        sets[name] = (circuit.values[name] * (1 + fraction * unit))[:, np.newaxis]
+    sets = {
+        name: (circuit.values[name] * (1 + fraction * unit_draws(rng, distribution, samples)))[:, np.newaxis]
+        for name, fraction in toleranced.items()
+    }
     return _band(circuit, frequency_hz, sets, (lo, hi))

@@ -59,11 +59,15 @@ class Circuit:
 
     def slowest_time_constant_s(self) -> float:
         """1 / min |Re(pole)|, s: 0 without poles, inf with a pole on the imaginary axis."""
-        poles = self.poles_rad_s()
-        if poles.size == 0:
-            return 0.0
-        slowest = float(np.min(np.abs(poles.real)))
-        return math.inf if slowest == 0 else 1.0 / slowest
+        return slowest_time_constant_s(self.poles_rad_s())
+
+
+def slowest_time_constant_s(poles_rad_s: np.ndarray) -> float:
+    """1 / min |Re(pole)| of poles in rad/s, s: 0 without poles, inf with one on the imaginary axis."""
+    if poles_rad_s.size == 0:
+        return 0.0
+    slowest = float(np.min(np.abs(poles_rad_s.real)))
+    return math.inf if slowest == 0 else 1.0 / slowest
 
 
 def _describe(spec: ComponentSpec) -> str:

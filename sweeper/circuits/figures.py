@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import dataclasses
 import math
+from collections.abc import Callable
 
 import numpy as np
 from scipy.optimize import brentq
@@ -179,7 +180,10 @@ def q_factor(circuit: Circuit) -> float:
 
 
 def figures(circuit: Circuit) -> dict[str, float]:
-    """All derived figures, keyed by name with unit suffix (FIGURE_KEYS); NaN where not defined."""
+    """All derived figures, keyed by name with unit suffix (FIGURE_KEYS); NaN where not defined.
+    A netlist or golden-curve model gives its own (`response_figures`)."""
+    if not isinstance(circuit, Circuit):
+        return circuit.figures()
     result = dict.fromkeys(FIGURE_KEYS, math.nan)
     kind = RESPONSE_KIND[circuit.topology]
     result["passband_gain_db"] = passband_gain_db(circuit)
@@ -198,4 +202,51 @@ def figures(circuit: Circuit) -> dict[str, float]:
         f0_gain_db = float(gain_db(circuit, np.array([result["f0_hz"]]))[0])
         result["notch_depth_db"] = f0_gain_db - result["passband_gain_db"]
     result["slowest_time_constant_s"] = circuit.slowest_time_constant_s()
+    return result
+
+
+def response_figures(
+    response: Callable[[np.ndarray | float], np.ndarray | complex],
+    low_hz: float,
+    high_hz: float,
+    slowest_time_constant_s: float,
+    limits_hz: tuple[float, float] | None = None,
+) -> dict[str, float]:
+    """Derived figures of any response function (complex H of Hz) scanned from low_hz to high_hz:
+    the passband gain (the low end of a low-pass-like response, the high end of a high-pass-like
+    one, else the peak), the -3.01 dB corner from it, and the given slowest time constant; NaN for
+    the rest. limits_hz: where to take the passband gain of a low-pass (e.g. 0 Hz) and of a
+    high-pass instead of the scan's ends, when the response is finite there."""
+    result = dict.fromkeys(FIGURE_KEYS, math.nan)
+    result["slowest_time_constant_s"] = slowest_time_constant_s
+    points = int(math.log10(high_hz / low_hz) * _GRID_POINTS_PER_DECADE) + 2
+    grid = np.geomspace(low_hz, high_hz, points)
+
+    def level_db(frequency_hz: np.ndarray | float) -> np.ndarray:
+        with np.errstate(divide="ignore"):
+            return 20 * np.log10(np.abs(np.asarray(response(frequency_hz))))
+
+    gain = level_db(grid)
+    if not np.all(np.isfinite(gain)):
+        return result
+    peak = float(gain.max())
+    if gain[0] >= peak - 0.5 and gain[0] > gain[-1] + 3:
+        falling, end = True, 0
+    elif gain[-1] >= peak - 0.5 and gain[-1] > gain[0] + 3:
+        falling, end = False, -1
+    else:
+        result["passband_gain_db"] = peak
+        return result
+    passband = float(gain[end])
+    if limits_hz is not None:
+        at_limit = float(level_db(limits_hz[0 if falling else 1]))
+        passband = at_limit if math.isfinite(at_limit) else passband
+    result["passband_gain_db"] = passband
+    level = passband + HALF_POWER_DB
+    below = gain < level
+    steps = np.flatnonzero(below[1:] & ~below[:-1]) if falling else np.flatnonzero(~below[1:] & below[:-1])
+    if steps.size:
+        i = steps[0] if falling else steps[-1]
+        result["corner_hz"] = 10.0 ** brentq(lambda x: float(level_db(10.0**x)) - level, math.log10(grid[i]),
+                                             math.log10(grid[i + 1]), xtol=1e-14)
     return result

@@ -176,10 +176,10 @@ def diagnose(run: str, runs_dir: str) -> None:
         IN_TOLERANCE,
         OUT_OF_TOLERANCE,
         ExtractionError,
-        extract,
         format_range,
         format_value,
     )
+    from sweeper.analysis.run_fit import extract
     from sweeper.store.runfile import read_run
 
     path = run_paths((run,), runs_dir)[0]
@@ -224,7 +224,8 @@ def diagnose(run: str, runs_dir: str) -> None:
         f"fit: {ex.points} points, chi-square {ex.chi2:.4g} for {ex.dof} degrees of freedom (reduced "
         f"{ex.reduced_chi2:.3g}); k = {ex.coverage_factor:.3g}"
         + (f"; uncertainties scaled by {ex.scale:.3g} for the scatter seen" if ex.scale > 1 else "")
-        + f"; {ex.reference} held at nominal (a sweep identifies only ratios of impedances)",
+        + (f"; {ex.reference} held at nominal (a sweep identifies only ratios of impedances)" if ex.reference
+           else "; each part fitted alone, the others nominal"),
         markup=False,
     )
     console.print(f"finding: {ex.finding}", markup=False)

@@ -13,7 +13,9 @@ from __future__ import annotations
 
 import hashlib
 import inspect
+from collections.abc import Mapping
 from pathlib import Path
+from typing import Any
 
 from pydantic import BaseModel, ValidationError
 from yaml.nodes import MappingNode
@@ -26,6 +28,7 @@ from sweeper.located import (
     read_text_file,
     sorted_unique,
 )
+from sweeper.plan.model_files import read_model_files
 from sweeper.plan.schema import Plan
 
 # YAML must use the keys (aliases), not the Python attribute names; pydantic >= 2.11 can say so.
@@ -37,23 +40,29 @@ class PlanError(LocatedError):
 
 
 def load_plan(path: str | Path) -> Plan:
-    """Read and validate a plan file; raises PlanError listing every problem."""
+    """Read and validate a plan file; raises PlanError listing every problem. Model files
+    (netlist_file, golden.file) are read relative to the plan's folder."""
     path = Path(path)
     data, text = read_text_file(path, "plan file", PlanError)
-    plan = _load(text, str(path))
+    plan = _load(text, str(path), path.parent)
     plan._sha256 = hashlib.sha256(data).hexdigest()
     plan._path = path
     return plan
 
 
-def load_plan_text(text: str, filename: str = "<plan>") -> Plan:
-    """Validate a plan given as text; filename only labels the problems. Raises PlanError."""
-    plan = _load(text, filename)
+def load_plan_text(text: str, filename: str = "<plan>", *, base_dir: str | Path | None = None,
+                   model_files: Mapping[str, Any] | None = None) -> Plan:
+    """Validate a plan given as text; filename only labels the problems. Raises PlanError.
+
+    base_dir: the folder model files are read from (the current one when None); model_files:
+    their texts as `Plan.model_files` keeps them (a run's), used instead of the disk."""
+    plan = _load(text, filename, Path(base_dir) if base_dir is not None else None, model_files)
     plan._sha256 = hashlib.sha256(text.encode("utf-8", "surrogatepass")).hexdigest()
     return plan
 
 
-def _load(text: str, filename: str) -> Plan:
+def _load(text: str, filename: str, base_dir: Path | None = None,
+          stored: Mapping[str, Any] | None = None) -> Plan:
     if not isinstance(text, str):
         raise PlanError([Problem(filename, 0, 0, (), "not_text", type(text).__name__, "text",
                                  "plan text must be a string")])
@@ -73,9 +82,11 @@ def _load(text: str, filename: str) -> Plan:
     except LocatedError as exc:
         raise PlanError(exc.problems) from None
     problems = list(tree.problems)
+    found, file_problems = read_model_files(data, tree, base_dir, stored)
+    problems.extend(file_problems)
     plan = None
     try:
-        plan = Plan.model_validate(data, **_ALIASES_ONLY)
+        plan = Plan.model_validate(data, context={"model_files": found}, **_ALIASES_ONLY)
     except ValidationError as exc:
         problems.extend(problems_from_errors(exc.errors(), tree, Plan))
     except RecursionError:
@@ -84,4 +95,5 @@ def _load(text: str, filename: str) -> Plan:
         raise PlanError(sorted_unique(problems))
     plan._source_text = text
     plan._locations = tree.locations()
+    plan._model_files = found.archive
     return plan

@@ -22,12 +22,14 @@ from pydantic import (
     Field,
     PrivateAttr,
     ValidationError,
+    ValidationInfo,
     model_validator,
 )
 
 from sweeper.circuits.catalog import COMPONENTS, ComponentSpec
 from sweeper.located import Finding, RuleError, raise_located
 from sweeper.plan.faults import FaultPolicies, Injection
+from sweeper.plan.model_files import FILE_MODELS, GOLDEN, NETLIST, ModelFiles
 from sweeper.plan.units import (
     AmplitudeVpp,
     AngleDeg,
@@ -154,14 +156,36 @@ def _did_you_mean(word: str, choices: list[str]) -> str:
     return f"; did you mean '{close[0]}'?" if close else ""
 
 
+MODEL_CIRCUITS = (*COMPONENTS, *FILE_MODELS)  # catalogued topologies, 'rational', 'netlist', 'golden'
+
+
 def _circuit_name(value: str) -> str:
-    if value not in COMPONENTS:
+    if value not in MODEL_CIRCUITS:
         raise RuleError(
             value,
-            f"is not a known circuit (expected one of: {', '.join(COMPONENTS)})"
-            + _did_you_mean(value, list(COMPONENTS)),
+            f"is not a known circuit (expected one of: {', '.join(MODEL_CIRCUITS)})"
+            + _did_you_mean(value, list(MODEL_CIRCUITS)),
         kind="unknown_name")
     return value
+
+
+def _model_files(info: ValidationInfo) -> ModelFiles:
+    """The model files the loader read (sweeper.plan.model_files), or none."""
+    context = info.context if isinstance(info.context, dict) else {}
+    found = context.get("model_files")
+    return found if isinstance(found, ModelFiles) else ModelFiles()
+
+
+def part_specs(circuit: object, found: ModelFiles) -> tuple[ComponentSpec, ...] | None:
+    """The parts a model has (name and kind): a catalogued topology's, a netlist's, none for a
+    golden curve; None when unknown (an unknown circuit, or a netlist that could not be read)."""
+    if circuit == NETLIST:
+        if found.netlist is None:
+            return None
+        return tuple(ComponentSpec(name, kind) for name, kind in found.netlist.kinds.items())
+    if circuit == GOLDEN:
+        return ()
+    return COMPONENTS.get(circuit) if isinstance(circuit, str) else None
 
 
 class _Section(BaseModel):
@@ -475,8 +499,35 @@ def _component_findings(
     return prepared, findings
 
 
+class GoldenSpec(_Section):
+    """A golden curve as the model (sweeper.circuits.golden): its CSV file and its band."""
+
+    file: Text  # relative to the plan file
+    band: Literal["uncertainty", "fixed"] = "uncertainty"  # +- k u of the curve, or +- gain / phase
+    coverage_factor: Annotated[Float, _above(0.0)] = 2.0  # k of the uncertainty band
+    gain_db: Annotated[GainDb, _above(0.0, "gain", inclusive=True)] | None = Field(None, alias="gain")
+    phase_deg: Annotated[AngleDeg, _above(0.0, "angle", inclusive=True)] | None = Field(None, alias="phase")
+
+    @model_validator(mode="after")
+    def _band_fields(self) -> GoldenSpec:
+        findings = []
+        if self.band == "fixed" and self.gain_db is None and self.phase_deg is None:
+            findings.append(Finding(("band",), "a fixed band needs gain and/or phase (e.g. gain: 0.1 dB, phase: 1 deg)",
+                                    kind="missing"))
+        if self.band == "uncertainty":
+            for name in ("gain_db", "phase_deg"):
+                if self._given(name):
+                    findings.append(Finding((self._alias(name),), "is only for band: fixed", at="key", kind="conflict"))
+        elif self._given("coverage_factor"):
+            findings.append(Finding(("coverage_factor",), "is only for band: uncertainty", at="key", kind="conflict"))
+        if findings:
+            raise_located(findings)
+        return self
+
+
 class Model(_Section):
-    """The circuit the DUT should behave like, with component tolerances and bench loading."""
+    """The circuit the DUT should behave like, with component tolerances and bench loading: a
+    catalogued topology, a rational H(s), a netlist (inline or a file) or a golden curve."""
 
     circuit: Annotated[str, AfterValidator(_circuit_name)]
     components: dict[str, Component] = Field(default_factory=dict)
@@ -484,14 +535,43 @@ class Model(_Section):
     zeros_hz: list[Root] = Field(default_factory=list, alias="zeros")  # s-plane roots / 2 pi, Hz
     poles_hz: list[Root] = Field(default_factory=list, alias="poles")
     gain: Float = 1.0  # rational only: H(s) = gain * prod(s - 2 pi z) / prod(s - 2 pi p)
+    netlist: str | None = None  # circuit netlist: the netlist's text (sweeper.circuits.netlist.parse)
+    netlist_file: Text | None = None  # circuit netlist: a netlist file, relative to the plan file
+    golden: GoldenSpec | None = None  # circuit golden
+
+    _parsed_netlist: Any = PrivateAttr(None)
+    _golden_curve: Any = PrivateAttr(None)
+
+    @property
+    def parsed_netlist(self) -> Any:
+        """The netlist (sweeper.circuits.netlist.Netlist) of circuit 'netlist', else None."""
+        return self._parsed_netlist
+
+    @property
+    def golden_curve(self) -> Any:
+        """The golden curve (sweeper.circuits.golden.GoldenCurve) of circuit 'golden', else None."""
+        return self._golden_curve
+
+    def part_specs(self) -> tuple[ComponentSpec, ...]:
+        """The model's parts (name, kind): a topology's, a netlist's; none for rational or golden."""
+        if self.circuit == NETLIST:
+            netlist = self._parsed_netlist
+            return tuple(ComponentSpec(n, k) for n, k in netlist.kinds.items()) if netlist is not None else ()
+        return COMPONENTS.get(self.circuit, ())
 
     @model_validator(mode="wrap")
     @classmethod
-    def _topology(cls, data: Any, handler: Any) -> Model:
+    def _topology(cls, data: Any, handler: Any, info: ValidationInfo) -> Model:
         if not isinstance(data, dict):
             return handler(data)
         findings: list[Finding | dict[str, Any]] = []
         circuit = data.get("circuit")
+        if circuit in FILE_MODELS and "components" in data:
+            where = ("the netlist (e.g. 'R1 in a 10k tol=1%')" if circuit == NETLIST
+                     else "nowhere: a golden curve has no parts")
+            findings.append(Finding(("components",), f"part values and tolerances of a {circuit} model belong in "
+                                    f"{where}", at="key", kind="conflict"))
+            data = {key: value for key, value in data.items() if key != "components"}
         specs = COMPONENTS.get(circuit) if isinstance(circuit, str) else None
         raw = data.get("components")
         if specs is not None and isinstance(raw, dict):
@@ -514,9 +594,43 @@ class Model(_Section):
             model = None
         if model is not None:
             findings.extend(model._roots())
+            findings.extend(model._files(_model_files(info)))
         if findings:
             raise_located(findings)
         return model
+
+    def _files(self, found: ModelFiles) -> list[Finding]:
+        """Rules of the netlist and golden models; attaches what the loader read."""
+        findings: list[Finding] = []
+        own = {NETLIST: ("netlist", "netlist_file"), GOLDEN: ("golden",)}
+        for circuit, names in own.items():
+            if self.circuit != circuit:
+                findings.extend(Finding((name,), f"is only for circuit {circuit!r}", at="key", kind="conflict")
+                                for name in names if self._given(name))
+        if self.circuit not in FILE_MODELS:
+            return findings
+        if self.circuit == NETLIST:
+            if self._given("netlist") and self._given("netlist_file"):
+                findings.append(Finding(("netlist_file",), "give netlist (the text) or netlist_file, not both",
+                                        at="key", kind="conflict"))
+            elif not (self._given("netlist") or self._given("netlist_file")):
+                findings.append(Finding((), "circuit 'netlist' needs netlist: | (the netlist's lines) or "
+                                        "netlist_file: <file>", kind="missing"))
+            self._parsed_netlist = found.netlist
+            return findings
+        if self.golden is None:
+            findings.append(Finding((), "circuit 'golden' needs golden: {file: <csv file>}", kind="missing"))
+        if self._given("loading"):
+            findings.append(Finding(("loading",), "does not apply to a golden curve: it was measured with its own "
+                                    "loading, which the curve includes", at="key", kind="conflict"))
+        curve = found.golden
+        if curve is not None and self.golden is not None and self.golden.band == "uncertainty" \
+                and not curve.has_uncertainty:
+            findings.append(Finding(("golden", "band"), f"uncertainty needs the columns u_gain_db and u_phase_deg in "
+                                    f"{curve.file}; otherwise give band: fixed with gain and phase",
+                                    kind="missing"))
+        self._golden_curve = curve
+        return findings
 
     def _roots(self) -> list[Finding]:
         findings = []
@@ -684,16 +798,36 @@ class Plan(_Section):
     _sha256: str = PrivateAttr("")
     _path: Path | None = PrivateAttr(None)
     _locations: dict[str, tuple[int, int]] = PrivateAttr(default_factory=dict)
+    _model_files: dict[str, dict[str, str]] = PrivateAttr(default_factory=dict)
+
+    @model_validator(mode="after")
+    def _golden_range(self) -> Plan:
+        """A sweep must stay within the golden curve's frequencies: outside them there is no model."""
+        curve = self.model.golden_curve
+        if curve is None:
+            return self
+        low, high = float(curve.frequency_hz[0]), float(curve.frequency_hz[-1])
+        span = f"{format_quantity(low, 'frequency')} to {format_quantity(high, 'frequency')}"
+        sweep = self.sweep
+        checks = ([(("sweep", "frequencies", i), f) for i, f in enumerate(sweep.frequencies_hz)]
+                  if sweep.frequencies_hz is not None else
+                  [(("sweep", "start"), sweep.start_hz), (("sweep", "stop"), sweep.stop_hz)])
+        findings = [Finding(loc, f"lies outside the golden curve's {span} ({curve.file})", follows_value=True,
+                            kind="out_of_range")
+                    for loc, f in checks if f is not None and not bool(curve.covers(f))]
+        if findings:
+            raise_located(findings)
+        return self
 
     @model_validator(mode="wrap")
     @classmethod
-    def _simulated_parts(cls, data: Any, handler: Any) -> Plan:
-        """Parse bench.simulation.components with the kinds of model.circuit's components."""
+    def _simulated_parts(cls, data: Any, handler: Any, info: ValidationInfo) -> Plan:
+        """Parse bench.simulation.components with the kinds of the model's parts."""
         if not isinstance(data, dict):
             return handler(data)
         model, bench = data.get("model"), data.get("bench")
         circuit = model.get("circuit") if isinstance(model, dict) else None
-        specs = COMPONENTS.get(circuit) if isinstance(circuit, str) else None
+        specs = part_specs(circuit, _model_files(info))
         simulation = bench.get("simulation") if isinstance(bench, dict) else None
         raw = simulation.get("components") if isinstance(simulation, dict) else None
         if specs is None or not isinstance(raw, dict):
@@ -725,6 +859,11 @@ class Plan(_Section):
     def path(self) -> Path | None:
         """Where the plan was read from; None when loaded from text."""
         return self._path
+
+    @property
+    def model_files(self) -> dict[str, dict[str, str]]:
+        """The model files read (netlist_file, golden.file): name as written -> {sha256, text}."""
+        return self._model_files
 
     def location(self, field: str) -> tuple[int, int] | None:
         """1-based (line, column) where a dotted YAML field ("sweep.stop", "limits.masks[0].to") is

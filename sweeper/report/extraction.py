@@ -17,9 +17,9 @@ from sweeper.analysis.extract import (
     OUT_OF_TOLERANCE,
     Extraction,
     ExtractionError,
-    extract,
     format_value,
 )
+from sweeper.analysis.run_fit import extract
 from sweeper.report.html_text import esc
 
 # Verdict colours as inline styles (the report's CSS variables), so the table needs no extra CSS.
@@ -68,7 +68,8 @@ def extraction_table_html(extraction: Extraction) -> str:
         f"uncertainty): chi-square {extraction.chi2:.4g} for {extraction.dof} degrees of freedom (reduced "
         f"{extraction.reduced_chi2:.3g}); intervals k = {extraction.coverage_factor:.3g}"
         + (f", uncertainties scaled by {extraction.scale:.3g} for the scatter seen" if extraction.scale > 1 else "")
-        + f". {extraction.reference} is held at nominal: a sweep identifies only ratios of impedances."
+        + (f". {esc(extraction.reference)} is held at nominal: a sweep identifies only ratios of impedances."
+           if extraction.reference else ". Each part is fitted alone, the others nominal.")
     )
     return (
         f'<table class="figures extraction">{head}<tbody>{"".join(rows)}</tbody></table>'

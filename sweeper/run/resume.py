@@ -126,7 +126,7 @@ def stored_plan(metadata: dict[str, Any], plan_path: str | os.PathLike[str] | No
                 "plan only; to measure with the changed plan, start a new run")
     label = metadata.get("plan_path") or "<plan stored in the journal>"
     try:
-        plan = load_plan_text(text, f"{label} (as stored in the journal)")
+        plan = load_plan_text(text, f"{label} (as stored in the journal)", model_files=metadata.get("model_files"))
     except PlanError as exc:
         raise ResumeRefused(f"the run's plan no longer loads with this sweeper:\n{exc}") from None
     plan._sha256 = sha

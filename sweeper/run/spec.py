@@ -140,6 +140,7 @@ def plan_metadata(plan: Plan) -> dict[str, Any]:
         "plan_yaml": plan.source_text,
         "plan_sha256": plan.sha256,
         "plan_path": str(plan.path) if plan.path else "",
+        "model_files": plan.model_files,  # netlist or golden-curve files the model was read from
         "dut": {"board": plan.dut.board, "serial": plan.dut.serial, "description": plan.dut.description},
         "operator": plan.metadata.operator,
         "station": plan.metadata.station,

@@ -13,7 +13,20 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 
-from sweeper.circuits import Circuit, Loading, build_circuit, monte_carlo_band, worst_case_band
+from sweeper.circuits import (
+    Circuit,
+    Loading,
+    build_circuit,
+    monte_carlo_band,
+    worst_case_band,
+)
+from sweeper.circuits.file_models import (
+    GoldenBandSettings,
+    MonteCarloSettings,
+    file_model_band,
+    file_model_circuit,
+    file_model_parts,
+)
 from sweeper.verdict.limits import Limits, build_limits, wrap_deg
 
 if TYPE_CHECKING:
@@ -33,18 +46,29 @@ def model_loading(model: Model, reference: str | None = None) -> Loading:
     )
 
 
+def _file_model(model: Model):
+    """The model's netlist or golden curve, None for catalogued and rational models."""
+    return model.parsed_netlist or model.golden_curve
+
+
 def nominal_values(model: Model) -> dict[str, float]:
     """Nominal component values of the model, SI units (Ohm, F, H)."""
+    if _file_model(model) is not None:
+        return file_model_parts(_file_model(model))[0]
     return {name: comp.value for name, comp in model.components.items()}
 
 
 def tolerances(model: Model) -> dict[str, float]:
     """Component tolerances of the model as fractions (0.01 = 1 %)."""
+    if _file_model(model) is not None:
+        return file_model_parts(_file_model(model))[1]
     return {name: comp.tolerance_frac for name, comp in model.components.items()}
 
 
 def circuit_with(model: Model, values: Mapping[str, float], reference: str | None = None) -> Circuit:
     """The model's topology and loading with the given component values (SI)."""
+    if _file_model(model) is not None:
+        return file_model_circuit(_file_model(model), dict(values), model_loading(model, reference))
     return build_circuit(
         model.circuit,
         dict(values),
@@ -76,7 +100,13 @@ def predict_limits(model: Model, limits: LimitsSection, frequency_hz: np.ndarray
     gain_db, phase_deg = gain_phase_of(circuit.response(frequency_hz))
     band = None
     toleranced = any(t > 0 for t in tolerances(model).values())
-    if limits.band != "none" and model.circuit != "rational" and toleranced:
+    b = None
+    if _file_model(model) is not None:
+        g, mc = model.golden, limits.monte_carlo
+        golden = GoldenBandSettings(g.band, g.coverage_factor, g.gain_db or 0.0, g.phase_deg or 0.0) if g else None
+        settings = MonteCarloSettings(mc.samples, tuple(mc.percentiles), mc.seed, mc.distribution)
+        b = file_model_band(circuit, frequency_hz, limits.band, settings, golden)
+    elif limits.band != "none" and model.circuit != "rational" and toleranced:
         common = dict(loading=model_loading(model))
         if limits.band == "worst-case":
             b = worst_case_band(model.circuit, nominal_values(model), tolerances(model), frequency_hz, **common)
@@ -93,6 +123,7 @@ def predict_limits(model: Model, limits: LimitsSection, frequency_hz: np.ndarray
                 distribution=mc.distribution,
                 **common,
             )
+    if b is not None:
         band = (b.gain_lo_db, b.gain_hi_db, b.phase_lo_deg, b.phase_hi_deg)
         # The band's phases are unwrapped around the nominal; keep the model on the same branch.
         phase_deg = np.asarray(b.nominal_phase_deg, dtype=float)

@@ -50,9 +50,14 @@ def measure(**fields: Any) -> tuple[pd.DataFrame, dict[str, Any]]:
     """The same sweep on the same simulated bench, wired as sweeper.run.runner.execute_run wires it,
     but without writing a journal and run file (the store costs more than the sweep here and is
     tested elsewhere): (points frame laid out as read_run gives it, metadata with the plan text)."""
-    plan = load_plan_text(plan_text(**fields), "plan.yaml")
+    return measure_plan(load_plan_text(plan_text(**fields), "plan.yaml"))
+
+
+def measure_plan(plan: Any) -> tuple[pd.DataFrame, dict[str, Any]]:
+    """`measure` for a plan already loaded."""
     points = sweep_only(run_spec(plan)).points
     metadata = {"run_id": f"{plan.dut.serial}-measured", "plan_yaml": plan.source_text, "plan_name": plan.name,
+                "model_files": plan.model_files,
                 "dut": {"board": plan.dut.board, "serial": plan.dut.serial}, "coverage_factor": 2.0}
     return points_frame(points), metadata
 

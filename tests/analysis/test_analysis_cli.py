@@ -11,8 +11,8 @@ import pytest
 from analysis_rig import sweep
 from click.testing import CliRunner
 
-from sweeper.report.extraction import extraction_section_html
 from sweeper.cli import main
+from sweeper.report.extraction import extraction_section_html
 from sweeper.store.runfile import read_run
 
 BOARDS = (("ANX3-0101", "{}"), ("ANX3-0102", "{C: 104 nF}"), ("ANX3-0103", "{C: 130 nF}"))

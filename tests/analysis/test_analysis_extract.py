@@ -28,9 +28,9 @@ from sweeper.analysis.extract import (
     coverage_factor,
     verdict_of,
 )
+from sweeper.analysis.figures import derived_figures
 from sweeper.circuits import Loading
 from sweeper.plan import load_plan
-from sweeper.analysis.figures import derived_figures
 from sweeper.run.runner import execute_run
 from sweeper.store.runfile import read_run
 
