@@ -131,10 +131,14 @@ class Link:
                 return self._read_exact(count)
             got = bytearray()
             chunk = max(1, int(getattr(self.resource, "chunk_size", 20 * 1024)))
+            # The count is known: the termination character is switched off for the payload, so
+            # an LF byte inside binary data does not end a read (with it on, pyvisa-py returns
+            # at every LF: thousands of reads for a 2 MB block). END still ends a read early;
+            # the loop goes on until count bytes are in.
+            term = self.resource.read_termination
+            self.resource.read_termination = None
             try:
                 while len(got) < count:
-                    # break_on_termchar: return at END or at an LF inside binary data; the loop
-                    # goes on until count bytes are in.
                     got += self.resource.read_bytes(min(chunk, count - len(got)), break_on_termchar=True)
             except visa_errors.VisaIOError as exc:
                 if exc.error_code != constants.StatusCode.error_timeout:
@@ -144,6 +148,8 @@ class Link:
                     f"truncated block: header announces {count} {part}, the read timed out "
                     f"after at least {len(got)}"
                 ) from None
+            finally:
+                self.resource.read_termination = term
             return bytes(got)
 
         def read_to_end() -> bytes:

@@ -10,8 +10,12 @@ the loopback servers of sweeper.sim.serve and read in its source:
 - Device clear (viClear) reads the socket until nothing arrives for 0.1 s; when the instrument
   has closed its end, every read returns at once with no data and the clear never ends. Here a
   clear that finds the connection closed reports it lost instead.
+- Each socket read asks the kernel for at most 4096 bytes (`max_recv_size`, fixed at open),
+  with a select() before every recv and a copy of the pending buffer after it: a 2 MB block
+  costs about 500 such rounds. The session's receive size is raised to the resource's
+  chunk size (at least 64 kB), which VISA leaves to the implementation.
 
-`prepare_session` applies both to a pyvisa-py socket session and leaves every other session
+`prepare_session` applies these to a pyvisa-py socket session and leaves every other session
 (another backend, another interface) alone.
 """
 
@@ -29,6 +33,8 @@ from pyvisa import constants
 CLEAR_LIMIT_S = 2.0
 #: Quiet time that ends a device clear, s (pyvisa-py's own value).
 CLEAR_QUIET_S = 0.1
+#: Smallest receive size given to a pyvisa-py socket session, bytes.
+MIN_RECV_BYTES = 64 * 1024
 
 
 def _pyvisa_py_session(resource: Any) -> Any:
@@ -83,15 +89,28 @@ def _safe_clear(session: Any) -> constants.StatusCode:
     return constants.StatusCode.success
 
 
+def widen_reads(resource: Any) -> int:
+    """Raise a pyvisa-py socket session's receive size to the resource's chunk size (at least
+    MIN_RECV_BYTES); the new size in bytes, 0 when it did not apply (never raises)."""
+    session = _pyvisa_py_session(resource)
+    if tcp_socket_of(resource) is None or not isinstance(getattr(session, "max_recv_size", None), int):
+        return 0
+    size = max(MIN_RECV_BYTES, int(getattr(resource, "chunk_size", 0) or 0), session.max_recv_size)
+    session.max_recv_size = size
+    return size
+
+
 def prepare_session(resource: Any) -> bool:
     """Fix a freshly opened pyvisa-py raw-socket session: no Nagle delay, a device clear that
-    ends on a closed connection. True when it was such a session (never raises)."""
+    ends on a closed connection, reads of the chunk size. True when it was such a session
+    (never raises)."""
     session = _pyvisa_py_session(resource)
     if tcp_socket_of(resource) is None:
         return False
     disable_nagle(resource)
+    widen_reads(resource)
     session.clear = types.MethodType(_safe_clear, session)
     return True
 
 
-__all__ = ["disable_nagle", "drain_socket", "prepare_session", "tcp_socket_of"]
+__all__ = ["disable_nagle", "drain_socket", "prepare_session", "tcp_socket_of", "widen_reads"]

@@ -62,7 +62,10 @@ def hang_up(conn: socket.socket) -> None:
 
 
 PAYLOAD = bytes(range(256)) * 4  # holds LF (0x0A) and CR bytes inside binary data
+# 300 kB of seeded random bytes: about 1,200 LF bytes inside the payload
+BIG = np.random.default_rng(7).integers(0, 256, 300_000, dtype=np.uint8).tobytes()
 TABLE: dict[bytes, Reply] = {
+    b"BIG?": ieee4882.format_block(BIG) + b"\n",
     b"*IDN?": b"Loopback Works,LB-1,LB-0001,0.1\n",
     b"BLOCK?": ieee4882.format_block(PAYLOAD) + b"\n",
     b"WORDS?": ieee4882.format_block(np.arange(-500, 500, dtype="<i2").tobytes()) + b"\n",
@@ -109,6 +112,20 @@ def test_query_and_block_with_terminators_inside(link) -> None:
     assert [s[2] for s in seen] == ["*IDN?", "BLOCK?", "*IDN?", "WORDS?"]
     assert seen[1][3] == "<block of 1024 bytes>" and seen[1][5] is None
     assert all(s[4] >= 0 for s in seen)
+
+
+def test_a_large_block_with_many_lf_bytes_arrives_whole_through_a_prepared_session(link) -> None:
+    from sweeper.instruments.transport import MIN_RECV_BYTES, prepare_session
+
+    lk, _server, _seen = link
+    assert prepare_session(lk.resource)  # a pyvisa-py raw socket: the fixes apply
+    session = lk.resource.visalib.sessions[lk.resource.session]
+    assert session.max_recv_size >= MIN_RECV_BYTES  # pyvisa-py opens it at 4096
+    assert BIG.count(b"\n") > 1000
+    assert lk.query_block("BIG?") == BIG
+    # the termination character is back on for text answers, and the session is in step
+    assert lk.resource.read_termination == "\n"
+    assert lk.query("*IDN?") == "Loopback Works,LB-1,LB-0001,0.1"
 
 
 def test_ascii_values(link) -> None:
