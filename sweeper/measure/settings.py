@@ -39,7 +39,8 @@ class EngineSettings:
     autorange: bool = True
     fit: FitKind = "three-parameter"
     decision_rule: DecisionRule = "guarded"
-    coverage_factor: float = 2.0
+    coverage_factor: float | None = None  # explicit k; None: Student's t at coverage_probability
+    coverage_probability: float = 0.95
     keep_waveforms: bool = False
     mode: Mode = "waveform"
 

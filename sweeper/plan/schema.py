@@ -741,7 +741,10 @@ class Limits(_Section):
     masks: list[Mask] = Field(default_factory=list)
     monte_carlo: MonteCarlo = Field(default_factory=MonteCarlo)
     decision_rule: Literal["simple", "guarded"] = "guarded"
-    coverage_factor: Annotated[Float, _above(0.0)] = 2.0
+    # k of U = k u when given (an explicit override); by default k is Student's t at
+    # coverage_probability with each point's effective degrees of freedom (GUM G.3, G.4).
+    coverage_factor: Annotated[Float, _above(0.0)] | None = None
+    coverage_probability: Annotated[Float, _above(0.0)] = 0.95
 
     @property
     def allowance_gain_db(self) -> float:
