@@ -58,24 +58,44 @@ def quantisation_u_v(full_scale_v: float, bits: int) -> float:
     return float(full_scale_v) / (2.0 ** int(bits)) / math.sqrt(12.0)
 
 
-def amplitude_bias_u_db(amplitude_v: float, full_scale_v: float, bits: int, nonlinearity_lsb: float,
-                        captures: int) -> float:
-    """Type B standard uncertainty (dB) of a fitted amplitude from the converter's systematic
-    error: rounding that is correlated with the signal (no dither) plus integral nonlinearity.
+def quantisation_bias_u(amplitude_v: float, full_scale_v: float, bits: int) -> float:
+    """Standard uncertainty, as a fraction of the amplitude, of a fitted amplitude's (or, in
+    radians, a fitted phase's) systematic error from an undithered ideal converter, when the
+    record visits its phases evenly (the engine's incoherent frequency).
 
-    An undithered converter's rounding error is a deterministic function of the waveform; its
-    projection on the fundamental is bounded by about half a step (q/2) and, treated as a
-    rectangular distribution, has u = q / (2 sqrt 3) (GUM 4.3.7). Captures at independent trigger
-    phases sample different code transitions, so the bias averages down as 1/sqrt(captures).
-    The nonlinearity term is nonlinearity_lsb steps, rectangular, and is not reduced by averaging.
-    amplitude_v: fitted peak amplitude, V; full_scale_v: range span, V.
+    The rounding error of a sine of amplitude A (in steps q) has a fundamental component
+    2 q sum_n J1(2 pi n A / q) / (pi n) (the Fourier-Bessel series of the sawtooth error; a
+    textbook result, quoted from memory). Over the unknown fraction of a step at which A falls,
+    J1(x) has rms 1 / sqrt(pi x) for large x, so the error's rms is
+    (2 q / pi) sqrt(zeta(3) / (2 pi^2 A / q)) = 0.157 q / sqrt(A / q): relative 0.157 (q / A)^1.5
+    (a type B evaluation, GUM 4.3: the error is fixed for one amplitude, unknown between them).
     """
     if not (amplitude_v > 0 and full_scale_v > 0 and bits > 0):
         return 0.0
-    q = float(full_scale_v) / (2.0 ** int(bits))
-    rounding = q / (2.0 * math.sqrt(3.0)) / math.sqrt(max(int(captures), 1))
-    nonlinear = nonlinearity_lsb * q / math.sqrt(3.0)
-    return _DB_PER_NEPER * math.hypot(rounding, nonlinear) / float(amplitude_v)
+    a_steps = float(amplitude_v) / (float(full_scale_v) / 2.0 ** int(bits))
+    return 0.157 / max(a_steps, 1.0) ** 1.5
+
+
+def converter_u(amplitude_v: float, full_scale_v: float, bits: int, noise_rms_v: float,
+                nonlinearity_lsb: float = 0.0) -> float:
+    """Type B relative standard uncertainty of a fitted amplitude (and, in radians, of a fitted
+    phase) from the converter: the quantisation bias, shrunk where the channel's own noise
+    dithers the converter, and integral nonlinearity (rectangular, GUM 4.3.7: u = a / sqrt 3).
+
+    Noise of rms sigma smooths the rounding error's harmonics by exp(-2 (pi sigma / q)^2)
+    (the characteristic function of Gaussian dither; Widrow's quantisation theorem, from
+    memory). noise_rms_v: the channel's noise rms, V (it includes the rounding error itself,
+    q / sqrt 12, of which only the excess dithers). The simulated converters are ideal and the
+    driver files state no nonlinearity, so nonlinearity_lsb defaults to 0.
+    """
+    if not (amplitude_v > 0 and full_scale_v > 0 and bits > 0):
+        return 0.0
+    q = float(full_scale_v) / 2.0 ** int(bits)
+    sigma = math.sqrt(max(float(noise_rms_v) ** 2 - q * q / 12.0, 0.0)) if math.isfinite(noise_rms_v) else 0.0
+    dither = math.exp(-2.0 * (math.pi * sigma / q) ** 2)
+    bias = quantisation_bias_u(amplitude_v, full_scale_v, bits) * dither
+    nonlinear = nonlinearity_lsb * q / float(amplitude_v) / math.sqrt(3.0)
+    return math.hypot(bias, nonlinear)
 
 
 def gain_frequency_u_db(slope_db_per_hz: float, u_frequency_hz: float) -> float:
@@ -85,9 +105,10 @@ def gain_frequency_u_db(slope_db_per_hz: float, u_frequency_hz: float) -> float:
 
 __all__ = [
     "DEFAULT_COVERAGE_PROBABILITY",
-    "amplitude_bias_u_db",
     "combined_u",
+    "converter_u",
     "gain_frequency_u_db",
+    "quantisation_bias_u",
     "quantisation_u_v",
     "student_k",
     "welch_satterthwaite",

@@ -3,11 +3,13 @@ frequency (IEEE Std 1057), autoranged, averaged until the target uncertainty is 
 
 from __future__ import annotations
 
+import math
 from collections.abc import Callable
 
 import numpy as np
 
 from sweeper.instruments.roles import Capture, Scope
+from sweeper.measure.budget import combined_u, converter_u, welch_satterthwaite
 from sweeper.measure.autorange import AUTORANGE_TRIES, RANGE_SMALL, set_first_ranges, span_for
 from sweeper.measure.gainphase import GainPhase, average_gain_phase, gain_phase
 from sweeper.measure.point import Flag, Measurement
@@ -19,6 +21,14 @@ from sweeper.measure.sinefit import SineFit, fit_sine, fit_sine_4
 THD_FLAG_DB = -40.0
 #: SNR below this (dB) flags a channel as low signal.
 SNR_FLAG_DB = 20.0
+
+
+_DB_PER_NEPER = 20.0 / math.log(10.0)
+
+
+def noise_rms_v(fit: SineFit) -> float:
+    """rms noise of a fitted channel, V, from its SNR (fitted harmonics removed)."""
+    return fit.amplitude_v / math.sqrt(2.0) * 10.0 ** (-fit.snr_db / 20.0)
 
 
 def fit_capture(capture: Capture, frequency_hz: float, settings: EngineSettings) -> list[SineFit]:
@@ -110,11 +120,23 @@ def measure_with_scope(
             flags |= Flag.LOW_SIGNAL
     state.last_frequency_hz = f
     state.last_amplitudes_v = (amp_in, amp_out)
+    bits = scope.limits.bits
+    conv = [converter_u(fit.amplitude_v, capture.full_scale_v[ch], bits, noise_rms_v(fit)) for ch, fit in enumerate(last)]
+    u_conv_gain_db = _DB_PER_NEPER * math.hypot(*conv)
+    u_conv_phase_deg = math.degrees(math.hypot(*conv))
+    u_gain = combined_u([gp.u_gain_db, u_conv_gain_db])
+    u_phase = combined_u([gp.u_phase_deg, u_conv_phase_deg])
     measurement = Measurement(
         gain_db=gp.gain_db,
         phase_deg=gp.phase_deg,
-        u_gain_db=gp.u_gain_db,
-        u_phase_deg=gp.u_phase_deg,
+        u_gain_db=u_gain,
+        u_phase_deg=u_phase,
+        dof_eff_gain=welch_satterthwaite([gp.u_gain_db, u_conv_gain_db], [gp.dof_gain, math.inf]),
+        dof_eff_phase=welch_satterthwaite([gp.u_phase_deg, u_conv_phase_deg], [gp.dof_phase, math.inf]),
+        u_gain_type_a_db=gp.u_gain_db,
+        u_phase_type_a_deg=gp.u_phase_deg,
+        u_gain_converter_db=u_conv_gain_db,
+        u_phase_converter_deg=u_conv_phase_deg,
         amplitude_in_v=amp_in,
         amplitude_out_v=amp_out,
         thd_in_db=last[0].thd_db,
