@@ -123,7 +123,9 @@ def measure_with_scope(
     bits = scope.limits.bits
     conv = [converter_u(fit.amplitude_v, capture.full_scale_v[ch], bits, noise_rms_v(fit)) for ch, fit in enumerate(last)]
     u_conv_gain_db = _DB_PER_NEPER * math.hypot(*conv)
-    u_conv_phase_deg = math.degrees(math.hypot(*conv))
+    # A sine's rounding error F(A sin t) is symmetric about t = 90 degrees, so it has no cos t
+    # component whatever the offset: an ideal converter biases the amplitude, not the phase.
+    u_conv_phase_deg = 0.0
     u_gain = combined_u([gp.u_gain_db, u_conv_gain_db])
     u_phase = combined_u([gp.u_phase_deg, u_conv_phase_deg])
     measurement = Measurement(
