@@ -98,6 +98,23 @@ def converter_u(amplitude_v: float, full_scale_v: float, bits: int, noise_rms_v:
     return math.hypot(bias, nonlinear)
 
 
+def random_noise_fraction(noise_rms_v: float, full_scale_v: float, bits: int) -> float:
+    """The part (ratio of rms values) of a fit's residual noise that varies from capture to
+    capture: analog noise sigma_a plus the rounding error only as far as that noise decorrelates
+    it, sigma_eff^2 = sigma_a^2 + (q^2 / 12) (1 - d), d = exp(-2 (pi sigma_a / q)^2) (Widrow's
+    quantisation theorem, from memory: with sigma_a >> q rounding is white noise of q^2 / 12;
+    with sigma_a << q it is a fixed function of the signal, whose fundamental part is the bias
+    of `quantisation_bias_u` and whose rest leaves the fit). noise_rms_v: the residual rms, V."""
+    if not (full_scale_v > 0 and bits > 0 and noise_rms_v > 0 and math.isfinite(noise_rms_v)):
+        return 1.0
+    q = float(full_scale_v) / 2.0 ** int(bits)
+    total = float(noise_rms_v) ** 2
+    analog = max(total - q * q / 12.0, 0.0)
+    d = math.exp(-2.0 * math.pi**2 * analog / (q * q))
+    effective = analog + q * q / 12.0 * (1.0 - d)
+    return min(math.sqrt(effective / total), 1.0)
+
+
 def gain_frequency_u_db(slope_db_per_hz: float, u_frequency_hz: float) -> float:
     """Standard uncertainty (dB) from the frequency's uncertainty: |dG/df| u(f) (GUM 5.1.3)."""
     return abs(float(slope_db_per_hz)) * float(u_frequency_hz)
@@ -110,6 +127,7 @@ __all__ = [
     "gain_frequency_u_db",
     "quantisation_bias_u",
     "quantisation_u_v",
+    "random_noise_fraction",
     "student_k",
     "welch_satterthwaite",
 ]

@@ -9,7 +9,9 @@ from collections.abc import Callable
 import numpy as np
 
 from sweeper.instruments.roles import Capture, Scope
-from sweeper.measure.budget import combined_u, converter_u, welch_satterthwaite
+from dataclasses import replace
+
+from sweeper.measure.budget import combined_u, converter_u, random_noise_fraction, welch_satterthwaite
 from sweeper.measure.autorange import AUTORANGE_TRIES, RANGE_SMALL, set_first_ranges, span_for
 from sweeper.measure.gainphase import GainPhase, average_gain_phase, gain_phase
 from sweeper.measure.point import Flag, Measurement
@@ -29,6 +31,16 @@ _DB_PER_NEPER = 20.0 / math.log(10.0)
 def noise_rms_v(fit: SineFit) -> float:
     """rms noise of a fitted channel, V, from its SNR (fitted harmonics removed)."""
     return fit.amplitude_v / math.sqrt(2.0) * 10.0 ** (-fit.snr_db / 20.0)
+
+
+def random_part(fit: SineFit, full_scale_v: float, bits: int) -> SineFit:
+    """The fit with its amplitude uncertainty cut to the noise that varies between captures
+    (type A); the converter's fixed rounding error is the budget's type B term instead. The
+    phase keeps the whole residual: its part of the rounding error is not a fixed bias the budget
+    holds elsewhere (an incoherent record breaks the symmetry that would cancel it), and the
+    coverage study (tests/measure/test_coverage.py) shows the whole residual is needed there."""
+    r = random_noise_fraction(noise_rms_v(fit), full_scale_v, bits)
+    return replace(fit, u_amplitude_v=fit.u_amplitude_v * r)
 
 
 def fit_capture(capture: Capture, frequency_hz: float, settings: EngineSettings) -> list[SineFit]:
@@ -97,7 +109,8 @@ def measure_with_scope(
         capture, fits, _retries, cflags = acquire(f, settings, scope, state, window)
         flags |= cflags
         captures += 1
-        results.append(gain_phase(fits[0], fits[1]))
+        results.append(gain_phase(*(random_part(fit, capture.full_scale_v[ch], scope.limits.bits)
+                                    for ch, fit in enumerate(fits))))
         fits_all.append(fits)
         if captures < settings.averages:
             continue
