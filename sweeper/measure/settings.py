@@ -43,6 +43,8 @@ class EngineSettings:
     coverage_probability: float = 0.95
     keep_waveforms: bool = False
     mode: Mode = "waveform"
+    thd_flag_db: float = -40.0  # THD above this (dB), significant above the noise, flags HIGH_DISTORTION
+    snr_flag_db: float = 20.0  # SNR below this (dB) flags LOW_SIGNAL
 
     def __post_init__(self) -> None:
         for name, kind in (("fit", FitKind), ("decision_rule", DecisionRule), ("mode", Mode)):

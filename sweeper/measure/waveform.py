@@ -7,6 +7,7 @@ import math
 from collections.abc import Callable
 
 import numpy as np
+from scipy import stats
 
 from sweeper.instruments.roles import Capture, Scope
 from dataclasses import replace
@@ -19,10 +20,31 @@ from sweeper.measure.schedule import HARMONICS, Window
 from sweeper.measure.settings import EngineSettings, EngineState
 from sweeper.measure.sinefit import SineFit, fit_sine, fit_sine_4
 
-#: THD above this (dB) flags a point as distorted (1 %: common practice for a linear DUT test).
+#: Default flag thresholds (the plan's acquisition.thd_flag and snr_flag override them): THD
+#: above -40 dB (1 %: common practice for a linear DUT test); SNR below 20 dB.
 THD_FLAG_DB = -40.0
-#: SNR below this (dB) flags a channel as low signal.
 SNR_FLAG_DB = 20.0
+#: False-alarm probability of the distortion test per channel and point: harmonics count as
+#: present only when their power exceeds what noise alone gives with this probability.
+DISTORTION_FALSE_ALARM = 1e-3
+
+
+def harmonics_significant(thd_db: float, snr_db: float, samples: int, harmonics: int,
+                          false_alarm: float = DISTORTION_FALSE_ALARM) -> bool:
+    """True when the fitted harmonics 2..H stand above the noise.
+
+    With white noise of variance sigma^2, each fitted harmonic's cosine and sine coefficients
+    are Gaussian with variance 2 sigma^2 / N (least squares over N samples), so noise alone
+    gives sum_h A_h^2 ~ (2 sigma^2 / N) chi^2 with 2 (H - 1) degrees of freedom. Relative to the
+    fundamental's A^2 = 2 sigma^2 SNR this is chi^2 / (N SNR); harmonics are significant when
+    the THD power ratio exceeds the chi^2 quantile at 1 - false_alarm over N SNR.
+    """
+    count = harmonics - 1
+    if count < 1 or samples < 1 or not math.isfinite(thd_db):
+        return False
+    snr = 10.0 ** (snr_db / 10.0)
+    floor = float(stats.chi2.ppf(1.0 - false_alarm, 2 * count)) / (samples * snr)
+    return 10.0 ** (thd_db / 10.0) > floor
 
 
 _DB_PER_NEPER = 20.0 / math.log(10.0)
@@ -43,10 +65,15 @@ def random_part(fit: SineFit, full_scale_v: float, bits: int) -> SineFit:
     return replace(fit, u_amplitude_v=fit.u_amplitude_v * r)
 
 
+def harmonics_for(capture: Capture, frequency_hz: float) -> int:
+    """Harmonics fitted (fundamental included): HARMONICS, or fewer below the Nyquist frequency."""
+    nyquist_harmonics = int((0.5 / capture.sample_interval_s) / frequency_hz - 1e-9)
+    return max(1, min(HARMONICS, nyquist_harmonics))
+
+
 def fit_capture(capture: Capture, frequency_hz: float, settings: EngineSettings) -> list[SineFit]:
     """Fit both channels at the known frequency (three-parameter) or refine it (four-parameter)."""
-    nyquist_harmonics = int((0.5 / capture.sample_interval_s) / frequency_hz - 1e-9)
-    harmonics = max(1, min(HARMONICS, nyquist_harmonics))
+    harmonics = harmonics_for(capture, frequency_hz)
     if settings.fit == "four-parameter":
         return [fit_sine_4(row, frequency_hz, capture.sample_interval_s) for row in capture.volts]
     return fit_sine(capture.volts, frequency_hz, capture.sample_interval_s, harmonics=harmonics)
@@ -126,10 +153,11 @@ def measure_with_scope(
     last = fits_all[-1]
     amp_in = float(np.mean([fs[0].amplitude_v for fs in fits_all]))
     amp_out = float(np.mean([fs[1].amplitude_v for fs in fits_all]))
+    harmonics = harmonics_for(capture, f)
     for fit in last:
-        if fit.thd_db > THD_FLAG_DB:
+        if fit.thd_db > settings.thd_flag_db and harmonics_significant(fit.thd_db, fit.snr_db, fit.samples, harmonics):
             flags |= Flag.HIGH_DISTORTION
-        if fit.snr_db < SNR_FLAG_DB:
+        if fit.snr_db < settings.snr_flag_db:
             flags |= Flag.LOW_SIGNAL
     state.last_frequency_hz = f
     state.last_amplitudes_v = (amp_in, amp_out)
@@ -168,4 +196,4 @@ def measure_with_scope(
     return measurement, capture
 
 
-__all__ = ["SNR_FLAG_DB", "THD_FLAG_DB", "acquire", "fit_capture", "measure_with_scope"]
+__all__ = ["SNR_FLAG_DB", "THD_FLAG_DB", "acquire", "fit_capture", "harmonics_significant", "measure_with_scope"]

@@ -422,6 +422,11 @@ class Acquisition(_Section):
     target_uncertainty: TargetUncertainty | None = None
     autorange: bool = True
     fit: Literal["three-parameter", "four-parameter"] = "three-parameter"
+    # Flag thresholds: THD above thd_flag (default -40 dB = 1 %, common practice for a linear
+    # DUT) flags high distortion, but only when the harmonics are significant above the noise;
+    # SNR below snr_flag (default 20 dB) flags low signal.
+    thd_flag_db: GainDb = Field(-40.0, alias="thd_flag")
+    snr_flag_db: GainDb = Field(20.0, alias="snr_flag")
 
     @model_validator(mode="after")
     def _averaging(self) -> Acquisition:

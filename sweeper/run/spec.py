@@ -64,6 +64,8 @@ def engine_settings(plan: Plan, keep_waveforms: bool = False) -> EngineSettings:
         coverage_probability=plan.limits.coverage_probability,
         keep_waveforms=keep_waveforms,
         mode=plan.bench.mode,
+        thd_flag_db=a.thd_flag_db,
+        snr_flag_db=a.snr_flag_db,
     )
 
 
