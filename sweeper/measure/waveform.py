@@ -82,9 +82,15 @@ def fit_capture(capture: Capture, frequency_hz: float, settings: EngineSettings)
 def acquire(
     f: float, settings: EngineSettings, scope: Scope, state: EngineState, window: Window
 ) -> tuple[Capture, list[SineFit], int, int]:
-    """One capture with autorange: (capture, its fits, re-captures used, flags)."""
+    """One capture with autorange: (capture, its fits, re-captures used, flags).
+
+    Hysteresis: a channel raised because it clipped is never lowered again within the same
+    acquisition, so autorange cannot alternate between two ranges (the smaller clipping, the
+    larger looking small); a capture still clipped at the end is flagged CLIPPED (not judged).
+    """
     flags = 0
     retries = 0
+    raised = [False, False]
     while True:
         capture = scope.capture()
         fits = fit_capture(capture, f, settings)
@@ -99,8 +105,9 @@ def acquire(
                 if span < largest:
                     wanted = max(span * 2.5, span_for(fits[ch].amplitude_v, settings.offset_v))
                     state.spans_v[ch] = scope.set_range(ch + 1, min(wanted, largest))
+                    raised[ch] = True
                     changed = True
-            elif 2 * fits[ch].amplitude_v < RANGE_SMALL * span and span > smallest:
+            elif not raised[ch] and 2 * fits[ch].amplitude_v < RANGE_SMALL * span and span > smallest:
                 wanted = span_for(fits[ch].amplitude_v, settings.offset_v)
                 new = scope.set_range(ch + 1, max(wanted, smallest))
                 if new < span:

@@ -14,7 +14,7 @@ from dataclasses import dataclass, replace
 import numpy as np
 
 from sweeper.measure.budget import DEFAULT_COVERAGE_PROBABILITY, student_k
-from sweeper.measure.point import Point, Verdict
+from sweeper.measure.point import Flag, Point, Verdict
 from sweeper.verdict.limits import Limits, wrap_deg
 
 VERDICT_LABELS: dict[int, str] = {
@@ -107,7 +107,7 @@ class PointJudge:
     limits_at: the model and limits at any frequency (Hz), keyed like `Limits.at`. A point
     measured away from its planned frequency (nudged for coherence) is judged at the frequency
     it was measured at, through limits_at; without it (or at the planned frequency exactly) the
-    planned limits are used.
+    planned limits are used. A point whose final capture clipped is NOT_JUDGED.
     """
 
     limits: Limits
@@ -137,6 +137,9 @@ class PointJudge:
         k_gain, k_phase = self.coverage_factors(point)
         result = judge_point(point.gain_db, point.phase_deg, point.u_gain_db, point.u_phase_deg, at, self.rule,
                              k_gain, k_phase)
-        return replace(point, **at, verdict=int(result["verdict"]), margin_gain_db=float(result["margin_gain_db"]),
+        verdict = int(result["verdict"])
+        if point.flags & Flag.CLIPPED:
+            verdict = int(Verdict.NOT_JUDGED)  # a clipped capture's gain says nothing of the board
+        return replace(point, **at, verdict=verdict, margin_gain_db=float(result["margin_gain_db"]),
                        margin_phase_deg=float(result["margin_phase_deg"]), k_gain=k_gain, k_phase=k_phase,
                        expanded_u_gain_db=k_gain * point.u_gain_db, expanded_u_phase_deg=k_phase * point.u_phase_deg)
