@@ -229,13 +229,19 @@ def test_out_of_tolerance_board_fails_where_band_is_exceeded(tmp_path: Path) -> 
     # than the measurement allowance plus a little, the point must fail; where it lies well
     # inside, it must not.
     g_true, p_true = reference(f, *rc_lowpass_ba(1.6e3, 130e-9))
-    pred = meta["prediction"]
-    lo = np.interp(f, pred["frequency_hz"], pred["gain_lo_db"])
-    hi = np.interp(f, pred["frequency_hz"], pred["gain_hi_db"])
-    plo = np.interp(f, pred["frequency_hz"], pred["phase_lo_deg"])
-    phi = np.interp(f, pred["frequency_hz"], pred["phase_hi_deg"])
+    # Limits as judged: at each point's measured frequency (stored with the point).
+    lo, hi = frame["gain_lo_db"].to_numpy(), frame["gain_hi_db"].to_numpy()
+    plo, phi = frame["phase_lo_deg"].to_numpy(), frame["phase_hi_deg"].to_numpy()
     clearly_out = (g_true < lo - 0.05) | (g_true > hi + 0.05) | (p_true < plo - 0.5) | (p_true > phi + 0.5)
-    clearly_in = (g_true > lo + 0.05) & (g_true < hi - 0.05) & (p_true > plo + 0.5) & (p_true < phi - 0.5)
+    # "Clearly in": inside by more than the point's expanded uncertainty plus the noise-free
+    # error bound of test_rc_lowpass_noise_free_matches_scipy_freqs (0.01 dB, 0.1 degree), so a
+    # guarded PASS is owed.
+    u_g, u_p = frame["expanded_u_gain_db"].to_numpy(), frame["expanded_u_phase_deg"].to_numpy()
+    in_g = np.minimum(g_true - lo, hi - g_true) > 0.01 + u_g
+    in_p = np.minimum(p_true - plo, phi - p_true) > 0.1 + u_p
+    clearly_in = in_g & in_p
     assert clearly_out.any()
+    assert clearly_in.any()  # not an empty set: the low-frequency points, where 130 nF hardly shows
     assert np.all(failing[clearly_out])
     assert not np.any(failing[clearly_in])
+    assert np.all(frame["verdict"].to_numpy()[clearly_in] == Verdict.PASS)
