@@ -85,6 +85,17 @@ def _at_most(limit: float, kind: str | None = None) -> AfterValidator:
     return AfterValidator(check)
 
 
+def _below(limit: float, kind: str | None = None) -> AfterValidator:
+    shown = format_quantity(limit, kind) if kind else f"{limit:g}"
+
+    def check(value: float) -> float:
+        if value >= limit:
+            raise RuleError(value, f"must be below {shown}")
+        return value
+
+    return AfterValidator(check)
+
+
 def _finite(value: float) -> float:
     if not math.isfinite(value):
         raise RuleError(value, "must be finite", kind="not_finite")
@@ -773,7 +784,7 @@ class Limits(_Section):
     # k of U = k u when given (an explicit override); by default k is Student's t at
     # coverage_probability with each point's effective degrees of freedom (GUM G.3, G.4).
     coverage_factor: Annotated[Float, _above(0.0)] | None = None
-    coverage_probability: Annotated[Float, _above(0.0)] = 0.95
+    coverage_probability: Annotated[Fraction, _above(0.5, "percent"), _below(1.0, "percent")] = 0.95
 
     @property
     def allowance_gain_db(self) -> float:
