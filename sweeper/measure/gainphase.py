@@ -25,12 +25,15 @@ _DB_PER_NEPER = 20.0 / math.log(10.0)  # d(20 log10 r) / d(ln r), dB
 @dataclass(frozen=True)
 class GainPhase:
     """Gain (dB) and phase (degrees, (-180, 180]) of output relative to input, with standard
-    uncertainties u_gain_db (dB) and u_phase_deg (degrees), k = 1."""
+    uncertainties u_gain_db (dB) and u_phase_deg (degrees), k = 1, and their degrees of freedom
+    (math.inf when they rest on a fit's thousands of residuals)."""
 
     gain_db: float
     phase_deg: float
     u_gain_db: float
     u_phase_deg: float
+    dof_gain: float = math.inf
+    dof_phase: float = math.inf
 
 
 def gain_phase(fit_in: SineFit, fit_out: SineFit) -> GainPhase:
@@ -68,7 +71,8 @@ def average_gain_phase(items: Sequence[GainPhase]) -> GainPhase:
     With few captures s is itself poorly known (n - 1 degrees of freedom, GUM G.3) and can come
     out small by chance; the propagated value guards against that. When the scatter exceeds what
     the fits predict, the type A value reveals it. Taking the larger is therefore conservative.
-    With n = 1 only the propagated value exists.
+    With n = 1 only the propagated value exists. Degrees of freedom: n - 1 where the type A
+    value was taken (GUM G.3.3), else those of the propagated value.
     """
     if len(items) == 0:
         raise ValueError("average_gain_phase needs at least one item")
@@ -84,8 +88,15 @@ def average_gain_phase(items: Sequence[GainPhase]) -> GainPhase:
 
     u_gain_db = math.sqrt(float(np.sum(u_gains**2))) / count
     u_phase_deg = math.sqrt(float(np.sum(u_phases**2))) / count
+    dof_gain = min(item.dof_gain for item in items)
+    dof_phase = min(item.dof_phase for item in items)
     if count > 1:
         deviations_deg = wrap_phase_deg(phases - phase_deg)
-        u_gain_db = max(u_gain_db, float(gains.std(ddof=1)) / math.sqrt(count))
-        u_phase_deg = max(u_phase_deg, float(deviations_deg.std(ddof=1)) / math.sqrt(count))
-    return GainPhase(gain_db=gain_db, phase_deg=phase_deg, u_gain_db=u_gain_db, u_phase_deg=u_phase_deg)
+        s_gain = float(gains.std(ddof=1)) / math.sqrt(count)
+        s_phase = float(deviations_deg.std(ddof=1)) / math.sqrt(count)
+        if s_gain > u_gain_db:
+            u_gain_db, dof_gain = s_gain, float(count - 1)
+        if s_phase > u_phase_deg:
+            u_phase_deg, dof_phase = s_phase, float(count - 1)
+    return GainPhase(gain_db=gain_db, phase_deg=phase_deg, u_gain_db=u_gain_db, u_phase_deg=u_phase_deg,
+                     dof_gain=dof_gain, dof_phase=dof_phase)

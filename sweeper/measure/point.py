@@ -54,6 +54,15 @@ class Measurement:
     samples: int = 0
     captures: int = 0
     flags: int = 0
+    dof_eff_gain: float = float("inf")  # effective degrees of freedom of u_gain_db (Welch-Satterthwaite)
+    dof_eff_phase: float = float("inf")
+    u_gain_type_a_db: float = float("nan")  # budget: type A (fit residuals, scatter between averages)
+    u_phase_type_a_deg: float = float("nan")
+    u_gain_converter_db: float = float("nan")  # budget: type B, converter quantisation and nonlinearity
+    u_phase_converter_deg: float = float("nan")
+    u_gain_reading_db: float = float("nan")  # budget: type B, residual scope-reading bias after correction
+    u_gain_frequency_db: float = float("nan")  # budget: type B, frequency error times the model's slope
+    u_phase_frequency_deg: float = float("nan")
 
     def fields(self) -> dict[str, float | int]:
         """The measured fields by name (the Point fields they fill)."""
@@ -82,6 +91,15 @@ class Point:
     samples: int = 0
     captures: int = 0  # acquisitions averaged into this point
     flags: int = 0  # Flag bit mask
+    dof_eff_gain: float = float("inf")  # effective degrees of freedom of u_gain_db (Welch-Satterthwaite)
+    dof_eff_phase: float = float("inf")
+    u_gain_type_a_db: float = float("nan")  # budget components, standard uncertainties (k = 1)
+    u_phase_type_a_deg: float = float("nan")
+    u_gain_converter_db: float = float("nan")
+    u_phase_converter_deg: float = float("nan")
+    u_gain_reading_db: float = float("nan")
+    u_gain_frequency_db: float = float("nan")
+    u_phase_frequency_deg: float = float("nan")
     elapsed_s: float = 0.0  # since the run started (bench clock)
     time_utc: str = ""  # ISO 8601, when the point was finished
     model_gain_db: float = float("nan")
@@ -93,6 +111,10 @@ class Point:
     verdict: int = 0  # Verdict
     margin_gain_db: float = float("nan")  # distance to the nearest gain limit, negative when outside
     margin_phase_deg: float = float("nan")
+    k_gain: float = float("nan")  # coverage factor of expanded_u_gain_db (Student's t at nu_eff, or the plan's k)
+    k_phase: float = float("nan")
+    expanded_u_gain_db: float = float("nan")  # U = k u, used by the guarded decision rule
+    expanded_u_phase_deg: float = float("nan")
 
 
 POINT_FIELDS: tuple[str, ...] = tuple(f.name for f in fields(Point))

@@ -19,6 +19,7 @@ import numpy as np
 from sweeper.instruments.roles import MeasuringScope, ScopeReading
 from sweeper.measure.phasewrap import wrap_phase_deg
 from sweeper.measure.autorange import AUTORANGE_TRIES, RANGE_SMALL, set_first_ranges, span_for
+from sweeper.measure.budget import welch_satterthwaite
 from sweeper.measure.point import Flag, Measurement
 from sweeper.measure.settings import EngineSettings, EngineState
 
@@ -118,9 +119,11 @@ def measure_with_scope_readings(
         usable = np.isfinite(vpp_in) & np.isfinite(vpp_out) & np.isfinite(phases) & (vpp_in > 0) & (vpp_out > 0)
         if usable.sum() < 2:
             gain_db = phase_deg = u_gain_db = u_phase_deg = math.nan
+            u_type_a_gain = u_type_a_phase = u_resolution = dof = math.nan
             break
         gains = 20.0 * np.log10(vpp_out[usable] / vpp_in[usable])
         gain_db, phase_deg, u_gain_db, u_phase_deg = type_a_gain_phase(gains, phases[usable])
+        u_type_a_gain, u_type_a_phase, dof = u_gain_db, u_phase_deg, float(usable.sum() - 1)
         u_resolution = resolution_u_gain_db(float(vpp_in[usable].mean()), float(vpp_out[usable].mean()),
                                             *reading.full_scale_v, scope.limits.bits)
         if math.isfinite(u_resolution):
@@ -162,4 +165,9 @@ def measure_with_scope_readings(
         samples=int(window.samples) if window is not None else 0,
         captures=len(readings) + retries,
         flags=int(flags),
+        dof_eff_gain=welch_satterthwaite([u_type_a_gain, u_resolution], [dof, math.inf]),
+        dof_eff_phase=dof,
+        u_gain_type_a_db=u_type_a_gain,
+        u_phase_type_a_deg=u_type_a_phase,
+        u_gain_converter_db=u_resolution,
     )

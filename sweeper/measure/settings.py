@@ -39,9 +39,12 @@ class EngineSettings:
     autorange: bool = True
     fit: FitKind = "three-parameter"
     decision_rule: DecisionRule = "guarded"
-    coverage_factor: float = 2.0
+    coverage_factor: float | None = None  # explicit k; None: Student's t at coverage_probability
+    coverage_probability: float = 0.95
     keep_waveforms: bool = False
     mode: Mode = "waveform"
+    thd_flag_db: float = -40.0  # THD above this (dB), significant above the noise, flags HIGH_DISTORTION
+    snr_flag_db: float = 20.0  # SNR below this (dB) flags LOW_SIGNAL
 
     def __post_init__(self) -> None:
         for name, kind in (("fit", FitKind), ("decision_rule", DecisionRule), ("mode", Mode)):

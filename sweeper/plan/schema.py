@@ -85,6 +85,17 @@ def _at_most(limit: float, kind: str | None = None) -> AfterValidator:
     return AfterValidator(check)
 
 
+def _below(limit: float, kind: str | None = None) -> AfterValidator:
+    shown = format_quantity(limit, kind) if kind else f"{limit:g}"
+
+    def check(value: float) -> float:
+        if value >= limit:
+            raise RuleError(value, f"must be below {shown}")
+        return value
+
+    return AfterValidator(check)
+
+
 def _finite(value: float) -> float:
     if not math.isfinite(value):
         raise RuleError(value, "must be finite", kind="not_finite")
@@ -288,6 +299,10 @@ class Bench(_Section):
         return self
 
 
+#: Output impedance of a bench function generator, Ohm (common practice: 50 Ohm).
+SOURCE_IMPEDANCE_OHM = 50.0
+
+
 class Stimulus(_Section):
     """The sine driving the DUT input."""
 
@@ -296,23 +311,43 @@ class Stimulus(_Section):
     load_ohm: Annotated[float | None, BeforeValidator(_load)] = Field(None, alias="load")  # None = high-Z
     max_amplitude_vpp: Annotated[AmplitudeVpp, _above(0.0, "amplitude")] = Field(10.0, alias="max_amplitude")
 
+    @property
+    def open_circuit_factor(self) -> float:
+        """How much more the DUT can receive than the setting says: a source set for a load of R
+        (Ohm) through its 50 Ohm output impedance gives (R + 50) / R times the displayed voltage
+        into a high-impedance DUT (twice for 50 Ohm; common practice); 1 for a high-Z setting."""
+        if self.load_ohm is None or not self.load_ohm > 0:
+            return 1.0
+        return (self.load_ohm + SOURCE_IMPEDANCE_OHM) / self.load_ohm
+
+    @property
+    def dut_amplitude_vpp(self) -> float:
+        """Worst-case peak-to-peak amplitude at the DUT (high-impedance input), V."""
+        return self.amplitude_vpp * self.open_circuit_factor
+
     @model_validator(mode="after")
     def _within_cap(self) -> Stimulus:
+        """The cap applies to what the DUT receives, not to the setting."""
         findings = []
         cap = format_quantity(self.max_amplitude_vpp, "amplitude")
-        if self.amplitude_vpp > self.max_amplitude_vpp:
+        factor = self.open_circuit_factor
+        delivered = self.dut_amplitude_vpp
+        note = "" if factor == 1.0 else (
+            f" (set for a {format_quantity(self.load_ohm, 'resistance')} load, so up to "
+            f"{format_quantity(delivered, 'amplitude')} at a high-impedance DUT: {factor:g} times the setting)")
+        if delivered > self.max_amplitude_vpp:
             findings.append(
                 Finding(
                     ("amplitude",),
-                    f"{format_quantity(self.amplitude_vpp, 'amplitude')} is above max_amplitude ({cap}); "
+                    f"{format_quantity(self.amplitude_vpp, 'amplitude')}{note} is above max_amplitude ({cap}); "
                     "the tool refuses to exceed the cap",
                 kind="over_cap")
             )
-        elif abs(self.offset_v) + self.amplitude_vpp / 2 > self.max_amplitude_vpp / 2:
+        elif (abs(self.offset_v) + self.amplitude_vpp / 2) * factor > self.max_amplitude_vpp / 2:
             findings.append(
                 Finding(
                     ("offset",),
-                    f"offset {format_quantity(self.offset_v, 'voltage')} plus half the amplitude swings beyond "
+                    f"offset {format_quantity(self.offset_v, 'voltage')} plus half the amplitude{note} swings beyond "
                     f"+-{format_quantity(self.max_amplitude_vpp / 2, 'voltage')}, half of max_amplitude ({cap})",
                 kind="over_cap")
             )
@@ -398,6 +433,11 @@ class Acquisition(_Section):
     target_uncertainty: TargetUncertainty | None = None
     autorange: bool = True
     fit: Literal["three-parameter", "four-parameter"] = "three-parameter"
+    # Flag thresholds: THD above thd_flag (default -40 dB = 1 %, common practice for a linear
+    # DUT) flags high distortion, but only when the harmonics are significant above the noise;
+    # SNR below snr_flag (default 20 dB) flags low signal.
+    thd_flag_db: GainDb = Field(-40.0, alias="thd_flag")
+    snr_flag_db: GainDb = Field(20.0, alias="snr_flag")
 
     @model_validator(mode="after")
     def _averaging(self) -> Acquisition:
@@ -741,7 +781,10 @@ class Limits(_Section):
     masks: list[Mask] = Field(default_factory=list)
     monte_carlo: MonteCarlo = Field(default_factory=MonteCarlo)
     decision_rule: Literal["simple", "guarded"] = "guarded"
-    coverage_factor: Annotated[Float, _above(0.0)] = 2.0
+    # k of U = k u when given (an explicit override); by default k is Student's t at
+    # coverage_probability with each point's effective degrees of freedom (GUM G.3, G.4).
+    coverage_factor: Annotated[Float, _above(0.0)] | None = None
+    coverage_probability: Annotated[Fraction, _above(0.5, "percent"), _below(1.0, "percent")] = 0.95
 
     @property
     def allowance_gain_db(self) -> float:

@@ -10,7 +10,8 @@ Column names carry their units: "frequency [Hz]", "gain [dB]", "u_gain [dB]", "p
   pandas needs float_precision="round_trip").
 * JSON: standard JSON (RFC 8259), an array of one object per point. JSON has no NaN or
   infinity, so every non-finite value is written as null: NaN comes back as NaN, but an
-  infinite limit (no limit on that side) also comes back as NaN. Read it with `read_points`
+  infinite limit (no limit on that side) or an infinite effective degrees of freedom (an
+  uncertainty resting on type B terms and long fits only) also comes back as NaN. Read it with `read_points`
   (Python's json module) or pandas.read_json(path, orient="records", precise_float=True);
   pandas' reader (3.1) refuses subnormal numbers (below 2.2e-308) with a range error.
 * Parquet: needs the optional package pyarrow; the run id, plan SHA-256 and column units are

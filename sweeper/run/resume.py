@@ -41,7 +41,7 @@ from sweeper.run.supervise import Supervisor
 from sweeper.run.transcript import Transcript, transcript_path
 from sweeper.store.journal import Journal, JournalContents, JournalError
 from sweeper.store.runfile import FINISH_EVENT, RESUMED_EVENT, RunWriter, ensure_runfile
-from sweeper.verdict import Limits, PointJudge
+from sweeper.verdict import Limits
 from sweeper.verdict.prediction import model_response
 
 LIMIT_NAMES = ("model_gain_db", "model_phase_deg", "gain_lo_db", "gain_hi_db", "phase_lo_deg", "phase_hi_deg")
@@ -302,7 +302,7 @@ def _resume(spec: RunSpec, journal: Journal, contents: JournalContents, meta: di
             on_start(outcome.run_id, freqs, resumed_at)
         state = engine_state_from_points(outcome.points, freqs)
         offset_s = next((p.elapsed_s for p in reversed(outcome.points) if math.isfinite(p.elapsed_s)), 0.0)
-        judge = PointJudge(limits, spec.settings.decision_rule, spec.settings.coverage_factor)
+        judge = spec.judge_with(limits)
         opened["supervisor"] = supervisor = Supervisor(
             spec.policies, bench, journal, writer, freqs, judge, spec.settings, model_response(spec.model),
             points=outcome.points, start_utc=now - timedelta(seconds=offset_s), elapsed_offset_s=offset_s,

@@ -99,12 +99,13 @@ def finish_run(
     the run stays unfinished in the journal, to be finished by `sweeper resume`. After a failed
     write (write_failed) the run file is only closed: it is rebuilt from the journal later
     (`ensure_runfile`, by resume or any reader), never written to a failing disk again. A run
-    with skipped points, like an incomplete one, never passes.
+    with skipped or clipped (not judged) points, like an incomplete one, never passes.
     """
     points = outcome.points
     skipped = sum(1 for p in points if p.flags & Flag.SKIPPED)
+    clipped = sum(1 for p in points if p.flags & Flag.CLIPPED)
     outcome.verdict = run_verdict([p.verdict for p in points]) if points else Verdict.NOT_JUDGED
-    if (outcome.status != "complete" or skipped) and outcome.verdict == Verdict.PASS:
+    if (outcome.status != "complete" or skipped or clipped) and outcome.verdict == Verdict.PASS:
         outcome.verdict = Verdict.NOT_JUDGED  # an incomplete run never passes
     outcome.faults = dict(fault_summary.get("faults", {}))
     summary = {

@@ -9,7 +9,7 @@ from __future__ import annotations
 
 import platform
 import socket
-from collections.abc import Mapping
+from collections.abc import Callable, Mapping
 from dataclasses import dataclass, replace
 from datetime import datetime
 from typing import TYPE_CHECKING, Any
@@ -23,7 +23,7 @@ from sweeper.measure.schedule import frequency_grid, time_constants_for_target
 from sweeper.measure.settings import EngineSettings
 from sweeper.plan.faults import FaultPolicies
 from sweeper.verdict import Limits, PointJudge
-from sweeper.verdict.prediction import nominal_circuit, predict_limits, true_circuit
+from sweeper.verdict.prediction import limits_function, nominal_circuit, predict_limits, true_circuit
 
 if TYPE_CHECKING:
     from sweeper.plan import Plan
@@ -61,8 +61,11 @@ def engine_settings(plan: Plan, keep_waveforms: bool = False) -> EngineSettings:
         fit=a.fit,
         decision_rule=plan.limits.decision_rule,
         coverage_factor=plan.limits.coverage_factor,
+        coverage_probability=plan.limits.coverage_probability,
         keep_waveforms=keep_waveforms,
         mode=plan.bench.mode,
+        thd_flag_db=a.thd_flag_db,
+        snr_flag_db=a.snr_flag_db,
     )
 
 
@@ -150,6 +153,7 @@ def plan_metadata(plan: Plan) -> dict[str, Any]:
         "mode": plan.bench.mode,
         "decision_rule": plan.limits.decision_rule,
         "coverage_factor": plan.limits.coverage_factor,
+        "coverage_probability": plan.limits.coverage_probability,
     }
 
 
@@ -175,11 +179,18 @@ class RunSpec:
     injections: tuple[Any, ...] = ()
     refusal: str | None = None
     keep_waveforms: bool = False
+    limits_at: Callable[[float], dict[str, float]] | None = None
 
     @property
     def judge(self) -> PointJudge:
-        """The judge of this run's points (limits, decision rule, coverage factor)."""
-        return PointJudge(self.limits, self.settings.decision_rule, self.settings.coverage_factor)
+        """The judge of this run's points (limits, decision rule, coverage), judging each point
+        at the frequency it was measured at."""
+        return self.judge_with(self.limits)
+
+    def judge_with(self, limits: Limits) -> PointJudge:
+        """A judge of this run's points against the given planned limits (a resumed run's stored ones)."""
+        s = self.settings
+        return PointJudge(limits, s.decision_rule, s.coverage_factor, s.coverage_probability, self.limits_at)
 
     def injector(self) -> FaultInjector | None:
         """A fresh fault injector for the simulated bench (rules carry state, so one per run)."""
@@ -216,6 +227,7 @@ def run_spec(plan: Plan, keep_waveforms: bool = False) -> RunSpec:
         injections=injections,
         refusal=refusal,
         keep_waveforms=keep_waveforms,
+        limits_at=limits_function(plan.model, plan.limits),
     )
 
 

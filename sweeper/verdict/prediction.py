@@ -142,6 +142,12 @@ def predict_limits(model: Model, limits: LimitsSection, frequency_hz: np.ndarray
     )
 
 
+def limits_function(model: Model, limits: LimitsSection):
+    """The model and limits at one frequency f (Hz) as `Limits.at` gives them: what a point
+    measured at f is judged against (the same prediction as `predict_limits`, evaluated at f)."""
+    return lambda f: predict_limits(model, limits, np.array([float(f)])).at(0)
+
+
 def model_response(circuit: Circuit):
     """The circuit's complex response at one frequency (Hz), as the engine's ranges want it."""
     return lambda f: complex(circuit.response(np.array([f]))[0])

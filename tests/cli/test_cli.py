@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import os
+import re
 import subprocess
 import sys
 from html.parser import HTMLParser
@@ -105,3 +106,22 @@ def test_run_demo_then_catalog_report_and_export(tmp_path: Path) -> None:
 def test_missing_plan_file_is_bad_input(tmp_path: Path) -> None:
     result = sweeper("run", str(tmp_path / "nope.yaml"))
     assert result.returncode == 2 and "Traceback" not in result.stderr
+
+
+@pytest.mark.parametrize("command", ["check", "run"])
+def test_a_50_ohm_setting_into_a_high_impedance_dut_is_capped_at_what_the_dut_receives(tmp_path: Path,
+                                                                                         command: str) -> None:
+    # 3 Vpp set for a 50 Ohm load is 6 Vpp at a high-impedance DUT (the source's 50 Ohm output
+    # impedance and the load form a divider of 1/2: common practice), above a 5 Vpp cap.
+    text = (REPO / "configs" / "rc-antialias.yaml").read_text()
+    text = re.sub(r"stimulus:.*?\nsweep:", "stimulus:\n  amplitude: 3 Vpp\n  load: 50 Ohm\n  max_amplitude: 5 Vpp\n"
+                  "sweep:", text, flags=re.S)
+    plan = tmp_path / "doubled.yaml"
+    plan.write_text(text)
+    args = [command, str(plan)] + (["--out", str(tmp_path / "runs")] if command == "run" else [])
+    result = sweeper(*args)
+    assert result.returncode == 2, result.stdout + result.stderr
+    assert "Traceback" not in result.stderr + result.stdout
+    located = [ln for ln in result.stderr.splitlines() if f"{plan}:" in ln and "stimulus.amplitude" in ln]
+    assert located and "6 Vpp" in located[0] and "max_amplitude" in located[0], result.stderr
+    assert not (tmp_path / "runs").exists() or not any((tmp_path / "runs").glob("*.h5"))

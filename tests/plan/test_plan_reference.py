@@ -175,3 +175,14 @@ def test_yaml_merge_keys_and_anchors() -> None:
     assert plan.bench.source.timeout_s == 3.0
     assert plan.bench.scope.timeout_s == 3.0  # merged from the anchor
     assert plan.bench.scope.driver == "sim-scope-b.yaml"  # explicit keys win over merged ones
+
+
+def test_coverage_probability_defaults_to_95_percent_and_is_bounded(tmp_path) -> None:
+    # GUM 6.2.2: 95 % is the usual level; 100 % has no finite Student's t, so it is refused, located.
+    from sweeper.plan import PlanError, load_plan_text
+    from sweeper.sim.demo import demo_plan_text
+
+    plan = load_plan_text(demo_plan_text(), str(tmp_path / "p.yaml"))
+    assert plan.limits.coverage_probability == 0.95 and plan.limits.coverage_factor is None
+    with pytest.raises(PlanError, match=r"p\.yaml:\d+:\d+: limits\.coverage_probability: '100 %' must be below 100 %"):
+        load_plan_text(demo_plan_text(limits="{band: worst-case, coverage_probability: 100 %}"), str(tmp_path / "p.yaml"))
