@@ -11,7 +11,6 @@ from __future__ import annotations
 import importlib
 
 import click
-from click.utils import make_default_short_help
 
 #: Top-level command -> (module under sweeper.cli that defines it, first sentence of its help).
 COMMANDS: dict[str, tuple[str, str]] = {
@@ -65,7 +64,7 @@ class _LazyGroup(click.Group):
         rows = []
         for name in names:
             summary = COMMANDS[name][1] if name in COMMANDS else self.commands[name].get_short_help_str(limit)
-            rows.append((name, make_default_short_help(summary, limit)))
+            rows.append((name, click.Command(name, help=summary).get_short_help_str(limit)))
         with formatter.section("Commands"):
             formatter.write_dl(rows)
 
