@@ -131,6 +131,8 @@ def finish_run(
         try:
             if event is not None and not write_failed:
                 writer.finish(event["summary"], end_utc=event["time_utc"])
+                if journal.sealed:
+                    writer.seal(journal.chain)
         except Exception as exc:  # noqa: BLE001
             problems.append(f"the run file could not be finished ({exc})")
         try:

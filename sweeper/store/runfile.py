@@ -85,6 +85,7 @@ from sweeper.store.journal import _fsync_dir, dumps, loads, read_journal, utc_no
 FORMAT_NAME = "sweeper-run"
 FORMAT_VERSION = 1
 FINISH_EVENT = "finished"
+SALVAGE_EVENT = "salvaged"  # journal event of `sweeper resume --salvage`: damaged records moved aside
 RESUMED_EVENT = "resumed"  # journal event of `sweeper resume`: voids the finish event before it
 """Journal event kind that marks a finished run; its data carry `summary` (dict)."""
 
@@ -98,6 +99,11 @@ _RESERVED_KEYS = frozenset(
 _CHUNK_POINTS = 64
 _STR_DTYPE = h5py.string_dtype("utf-8")
 _NP_DTYPES = {int: np.dtype(np.int64), float: np.dtype(np.float64), str: _STR_DTYPE}
+
+
+SEAL_ATTRIBUTES = ("seal_journal_sha256", "seal_content_sha256")
+"""Root attributes of the seal; `content_digest` leaves them (and nothing else) out."""
+_UNHASHED_ATTRIBUTES = frozenset({*SEAL_ATTRIBUTES, "DIMENSION_LIST", "REFERENCE_LIST"})
 
 
 class RunFileError(ValueError):
@@ -365,6 +371,15 @@ class RunWriter:
         f.flush()
         self._finished = True
 
+    def seal(self, journal_chain: str) -> None:
+        """Write the seal: the journal's running hash after its last record (hex) and the
+        digest of this file's content and metadata (`content_digest`), then flush."""
+        if not self._file:
+            raise RunFileError(f"{self._path}: run file is closed")
+        self._file.attrs["seal_journal_sha256"] = str(journal_chain)
+        self._file.attrs["seal_content_sha256"] = content_digest(self._file)
+        self._file.flush()
+
     def close(self) -> None:
         """Close the file (idempotent). Without `finish` the run stays marked unfinished."""
         if self._file:
@@ -375,6 +390,61 @@ class RunWriter:
 
     def __exit__(self, *exc: object) -> None:
         self.close()
+
+
+def _canonical(value: Any) -> Any:
+    """A JSON-able, exact stand-in of an HDF5 value (attribute or dataset content) for hashing."""
+    if isinstance(value, bytes):
+        return value.decode("utf-8", "surrogateescape")
+    if isinstance(value, np.ndarray):
+        if value.dtype.kind in "OSU":
+            return ["strings", list(value.shape), [_canonical(v) for v in value.reshape(-1).tolist()]]
+        return [value.dtype.str, list(value.shape), np.ascontiguousarray(value).tobytes().hex()]
+    if isinstance(value, np.generic):
+        return _canonical(np.asarray(value))
+    if isinstance(value, float):
+        return ["float", struct_bits(value)]
+    if isinstance(value, (str, int, bool)) or value is None:
+        return value
+    return repr(value)
+
+
+def struct_bits(value: float) -> str:
+    """The 16 hex digits of a float64's bits (NaN payloads kept)."""
+    return np.float64(value).tobytes().hex()
+
+
+def _attrs_canonical(attrs: h5py.AttributeManager, skip: frozenset[str]) -> list[Any]:
+    return [[key, _canonical(attrs[key])] for key in sorted(attrs) if key not in skip]
+
+
+def content_digest(f: h5py.File) -> str:
+    """SHA-256 (hex) of a run file's content and metadata: every attribute (the seal's own and
+    HDF5's dimension-scale bookkeeping left out) and every dataset's values, in name order."""
+    entries: list[Any] = [["/", _attrs_canonical(f.attrs, _UNHASHED_ATTRIBUTES)]]
+
+    def visit(name: str, obj: Any) -> None:
+        attrs = _attrs_canonical(obj.attrs, _UNHASHED_ATTRIBUTES)
+        if isinstance(obj, h5py.Dataset):
+            data = obj.asstr()[()] if h5py.check_string_dtype(obj.dtype) else obj[()]
+            entries.append([name, attrs, _canonical(np.asarray(data, dtype=object if isinstance(data, str) else None))])
+        else:
+            entries.append([name, attrs])
+
+    f.visititems(visit)
+    text = json.dumps(entries, ensure_ascii=False, separators=(",", ":"))
+    return hashlib.sha256(text.encode("utf-8", "surrogateescape")).hexdigest()
+
+
+def read_seal(path: str | os.PathLike[str]) -> tuple[str, str, str]:
+    """A run file's seal: (journal chain, stored content digest, recomputed content digest);
+    the first two are "" when the file carries no seal (written before seals, or never closed)."""
+    with h5py.File(path, "r") as f:
+        chain = f.attrs.get("seal_journal_sha256", "")
+        stored = f.attrs.get("seal_content_sha256", "")
+        actual = content_digest(f)
+    text = [v.decode() if isinstance(v, bytes) else str(v) for v in (chain, stored)]
+    return text[0], text[1], actual
 
 
 def _check_format(f: h5py.File, path: Path) -> None:
@@ -479,6 +549,9 @@ def _finish_event(events: list[dict[str, Any]]) -> dict[str, Any] | None:
     return None
 
 
+finish_event_in_force = _finish_event
+
+
 def rebuild_runfile(journal_path: str | os.PathLike[str], runfile_path: str | os.PathLike[str]) -> None:
     """Write a complete run file from the journal alone, atomically (temp file + os.replace).
 
@@ -499,6 +572,8 @@ def rebuild_runfile(journal_path: str | os.PathLike[str], runfile_path: str | os
             done = _finish_event(contents.events)
             if done is not None:
                 writer.finish(done.get("summary") or {}, end_utc=done["time_utc"])
+            if contents.sealed:
+                writer.seal(contents.chain_sha256)
         fd = os.open(tmp, os.O_RDONLY)
         try:
             os.fsync(fd)
