@@ -6,6 +6,7 @@ import sys
 from pathlib import Path
 
 import click
+from rich.markup import escape
 from rich.table import Table
 
 from sweeper.cli import main
@@ -96,7 +97,7 @@ def verify(runs_dir: str) -> None:
     bad = [r for r in results if r.state != "ok"]
     for r in results:
         style = "green" if r.state == "ok" else "bold red"
-        console.print(f"[{style}]{r.state:10}[/] {r.run_id}  {r.path}  {r.detail}")
+        console.print(f"[{style}]{r.state:10}[/] " + escape(f"{r.run_id}  {r.path}  {r.detail}"), soft_wrap=True)
     console.print(f"{len(results)} file(s) checked, {len(bad)} problem(s)")
     sys.exit(ExitCode.FAIL if bad else ExitCode.PASS)
 

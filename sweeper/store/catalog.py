@@ -38,12 +38,13 @@ import h5py
 import numpy as np
 
 from sweeper.measure.point import Verdict
+from sweeper.store.seal import check_journal, check_run
 
 CATALOG_NAME = "catalog.sqlite"
 CATALOG_FORMAT = "sweeper-catalog"
 SCHEMA_VERSION = 1
 STATUSES: tuple[str, ...] = ("complete", "interrupted", "error")
-VERIFY_STATES: tuple[str, ...] = ("ok", "missing", "altered", "unreadable")
+VERIFY_STATES: tuple[str, ...] = ("ok", "missing", "altered", "unreadable", "seal broken")
 
 _T = TypeVar("_T")
 _SQLITE_BUSY, _SQLITE_LOCKED = 5, 6
@@ -601,11 +602,45 @@ def _hdf5_problem(path: Path) -> str:
 
 
 def verify(catalog: Catalog) -> list[VerifyResult]:
-    """Re-hash every catalogued run file, in catalog order (newest first).
+    """Re-hash every catalogued run file, in catalog order (newest first), and check its seal
+    against the file and its journal (`sweeper.store.seal.check_run`); then check every run
+    file and journal in the catalog's folder that the catalog does not hold.
 
     "missing": no file at the path; "altered": its SHA-256 differs from the catalogued one;
-    "unreadable": the bytes cannot be read, or they match but HDF5 cannot open them; else "ok".
+    "unreadable": the bytes cannot be read, or they match but HDF5 cannot open them; "seal
+    broken": the file or its journal disagrees with the seal; else "ok" (the detail says
+    whether it is sealed, and any salvage the journal records).
     """
+    results = [_with_seal(r) for r in _verify_hashes(catalog)]
+    known = {r.run_id for r in results}
+    for journal in sorted(catalog.folder.rglob("*.journal")):
+        run_id = journal.stem
+        if run_id in known or journal.name.startswith("."):
+            continue
+        known.add(run_id)
+        h5 = journal.with_suffix(".h5")
+        check = check_run(h5, journal) if h5.is_file() else check_journal(journal)
+        state = "seal broken" if check.broken else "ok"
+        results.append(VerifyResult(run_id, h5 if h5.is_file() else journal, state,
+                                    f"not in the catalog; {check.describe()}"))
+    for h5 in sorted(catalog.folder.rglob("*.h5")):
+        if h5.stem in known or h5.name.startswith("."):
+            continue
+        check = check_run(h5)
+        state = "seal broken" if check.broken else "ok"
+        results.append(VerifyResult(h5.stem, h5, state, f"not in the catalog; {check.describe()}"))
+    return results
+
+
+def _with_seal(result: VerifyResult) -> VerifyResult:
+    if result.state not in ("ok", "altered"):
+        return result
+    check = check_run(result.path)
+    state = "seal broken" if check.broken and result.state == "ok" else result.state
+    return VerifyResult(result.run_id, result.path, state, f"{result.detail}; {check.describe()}")
+
+
+def _verify_hashes(catalog: Catalog) -> list[VerifyResult]:
     results: list[VerifyResult] = []
     for record in catalog.find():
         path = catalog.resolve(record)
@@ -646,6 +681,8 @@ def rebuild(
     (even a damaged one) is not read. Retest flags and campaigns come from the files; a run
     without a retest flag is a retest when an earlier run of its serial is on disk. Files that
     are not readable run files are skipped and reported to `on_skip(path, reason)`.
+    A file whose seal or journal disagrees (`sweeper.store.seal.check_run`) is never
+    catalogued: it is reported to `on_skip` and left untouched, for `verify` to report.
     Run it while no other process has the catalog open. Returns the new catalog, open.
     """
     catalog_path = Path(catalog_path)
@@ -655,6 +692,11 @@ def rebuild(
     found: list[tuple[RunRecord, bool]] = []
     for file in sorted(runs_dir.rglob("*.h5")):
         if file.name.startswith(".") or not file.is_file():
+            continue
+        check = check_run(file)
+        if check.broken:
+            if on_skip is not None:
+                on_skip(file, f"refused, left as it is: {check.describe()}")
             continue
         try:
             found.append(_read_runfile(file))
