@@ -16,6 +16,7 @@ from sweeper.cli.common import (
     err_console,
     open_catalog,
     read_or_exit,
+    rebuild_if_needed,
 )
 from sweeper.measure.point import Verdict
 from sweeper.plan import format_quantity
@@ -58,14 +59,18 @@ def show(run: str, runs_dir: str) -> None:
     from sweeper.store.runfile import read_run
 
     path = Path(run)
-    if not path.is_file():
+    if not path.is_file() and not (path.suffix == ".h5" and path.with_suffix(".journal").is_file()):
         with open_catalog(runs_dir) as catalog:
             try:
                 path = catalog.resolve(catalog.get(run))
             except KeyError as exc:
                 err_console.print(f"show: {exc}", markup=False)
                 sys.exit(ExitCode.BAD_INPUT)
+    rebuild_if_needed(path)
     frame, meta = read_or_exit(path, read_run)
+    from sweeper.store.seal import check_run
+
+    seal = check_run(path)
     table = Table(show_header=False, title=str(path))
     for key in ("run_id", "plan_name", "plan_sha256", "start_utc", "end_utc", "station", "operator", "host",
                 "verdict_name", "finished"):
@@ -76,6 +81,7 @@ def show(run: str, runs_dir: str) -> None:
         table.add_row(f"instrument ({ident.get('role')})", f"{ident.get('resource')}  {ident.get('idn')}  "
                                                              f"{ident.get('driver')}")
     table.add_row("points", f"{len(frame)}")
+    table.add_row("seal", escape(seal.describe()))
     console.print(table)
     if len(frame):
         failing = frame[frame["verdict"] >= int(Verdict.FAIL_UNCERTAIN)]

@@ -431,6 +431,15 @@ def render_html(
     )
 
 
+def mark_html(path: str | Path, warning: str) -> None:
+    """Put a warning banner at the top of a written page (e.g. a broken seal), text escaped."""
+    path = Path(path)
+    page = path.read_text(encoding="utf-8")
+    banner = (f'<p class="seal-warning" style="background:#b00020;color:#fff;padding:.6em;font-weight:bold">'
+              f"{esc(warning)}</p>\n")
+    path.write_text(page.replace("<body>\n", "<body>\n" + banner, 1), encoding="utf-8")
+
+
 def write_html(
     runs: Sequence[ReportRun],
     path: str | Path,

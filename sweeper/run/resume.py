@@ -39,8 +39,9 @@ from sweeper.run.session import file_in_catalog, finish_run, run_on_bench
 from sweeper.run.spec import RunSpec, bench_for_run, run_spec
 from sweeper.run.supervise import Supervisor
 from sweeper.run.transcript import Transcript, transcript_path
-from sweeper.store.journal import Journal, JournalContents, JournalError
-from sweeper.store.runfile import FINISH_EVENT, RESUMED_EVENT, RunWriter, ensure_runfile
+from sweeper.store.journal import Journal, JournalContents, JournalError, cut_damage, find_damage
+from sweeper.store.runfile import FINISH_EVENT, RESUMED_EVENT, SALVAGE_EVENT, RunWriter, ensure_runfile
+from sweeper.store.seal import check_run
 from sweeper.verdict import Limits, PointJudge
 from sweeper.verdict.prediction import model_response
 
@@ -207,19 +208,37 @@ def resume_run(
     on_start: Callable[[str, np.ndarray, int], None] | None = None,
     on_point: Callable[[Point], None] | None = None,
     should_stop: Callable[[], bool] | None = None,
+    salvage: bool = False,
 ) -> ResumeOutcome:
     """Resume RUN (see the module docstring). ResumeRefused before anything is measured or
     written when the run cannot be resumed; otherwise never raises for instrument faults.
-    on_start(run_id, planned frequencies, index resumed at) runs once the checks passed."""
+    on_start(run_id, planned frequencies, index resumed at) runs once the checks passed.
+
+    A run file whose seal disagrees with itself or its journal is refused, and nothing is
+    written. With salvage, a journal damaged after its header is cut back to its last good
+    record, the damaged bytes kept in `<run_id>.damaged-<UTC time>.bin` beside it (and the old
+    run file as `<run_id>.h5.before-salvage`), and a `salvaged` event records it."""
     journal_path, run_path = locate_run(run, runs_dir)
+    salvaged: dict[str, Any] = {}
+    if salvage:
+        salvaged = _salvage(journal_path, run_path)
+    if run_path.is_file() and not salvaged:
+        check = check_run(run_path, journal_path)
+        if check.broken:
+            raise ResumeRefused(f"{run_path}: {check.describe()}; refused, nothing was written "
+                                "(the run file and journal are left as they are)", EXIT_RUN_ERROR)
     try:
         last_write_s = journal_path.stat().st_mtime
         journal = Journal.open_append(journal_path)
     except (OSError, JournalError) as exc:
         in_use = "another process" in str(exc)
-        raise ResumeRefused(str(exc) + ("" if not in_use else " (is the run still going?)"),
-                            EXIT_RUN_ERROR if in_use else EXIT_BAD_INPUT) from None
+        hint = " (is the run still going?)" if in_use else (
+            "" if exc.__class__ is OSError or getattr(exc, "line", None) in (None, 1)
+            else "; `sweeper resume --salvage` goes on from the last good record, keeping the damaged bytes aside")
+        raise ResumeRefused(str(exc) + hint, EXIT_RUN_ERROR if in_use else EXIT_BAD_INPUT) from None
     try:
+        if salvaged:
+            journal.append_event(SALVAGE_EVENT, **salvaged)
         contents = journal.contents
         header = contents.header
         meta = header.get("metadata") or {}
@@ -251,6 +270,23 @@ def resume_run(
         if not journal.closed:
             journal.close()
         raise
+
+
+def _salvage(journal_path: Path, run_path: Path) -> dict[str, Any]:
+    """Move a damaged journal tail aside (see `resume_run`); {} when the journal reads whole."""
+    try:
+        _, damage = find_damage(journal_path)
+    except JournalError as exc:
+        raise ResumeRefused(f"{exc}; nothing can be salvaged without a sound header") from None
+    if damage is None:
+        return {}
+    stamp = datetime.now(timezone.utc).strftime("%Y%m%dT%H%M%S.%fZ")
+    keep = journal_path.with_name(f"{journal_path.stem}.damaged-{stamp}.bin")
+    cut_damage(journal_path, damage, keep)
+    if run_path.is_file():
+        os.replace(run_path, run_path.with_name(run_path.name + ".before-salvage"))
+    return {"line": damage.line, "offset": damage.offset, "bytes": len(damage.data),
+            "sha256": hashlib.sha256(damage.data).hexdigest(), "kept_in": keep.name, "reason": damage.message}
 
 
 def _already_complete(outcome: RunOutcome, contents: JournalContents, done: dict[str, Any]) -> ResumeOutcome:
