@@ -41,7 +41,7 @@ from sweeper.run.supervise import Supervisor
 from sweeper.run.transcript import Transcript, transcript_path
 from sweeper.store.journal import Journal, JournalContents, JournalError, cut_damage, find_damage
 from sweeper.store.runfile import FINISH_EVENT, RESUMED_EVENT, SALVAGE_EVENT, RunWriter, ensure_runfile
-from sweeper.store.seal import check_run
+from sweeper.store.seal import check_journal, check_run
 from sweeper.verdict import Limits, PointJudge
 from sweeper.verdict.prediction import model_response
 
@@ -224,7 +224,7 @@ def resume_run(
         salvaged = _salvage(journal_path, run_path)
     if run_path.is_file() and not salvaged:
         check = check_run(run_path, journal_path)
-        if check.broken:
+        if check.broken and not check_journal(journal_path).broken:  # a damaged journal is told below
             raise ResumeRefused(f"{run_path}: {check.describe()}; refused, nothing was written "
                                 "(the run file and journal are left as they are)", EXIT_RUN_ERROR)
     try:
