@@ -263,8 +263,9 @@ def _parse(path: Path, data: bytes, stop_at_damage: bool = False) -> tuple[Journ
         if number == 1:
             header = payload.get("header")
             created = payload.get("created_utc", "")
-        chain = next_chain(chain, line + b"\n")
-        chains.append(chain)
+        if sealed:
+            chain = next_chain(chain, line + b"\n")
+            chains.append(chain)
         good += len(line) + 1
     contents = JournalContents(header, points, events, tail > 0, tail, created, len(lines), sealed, chain, chains,
                                good)
