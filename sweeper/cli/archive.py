@@ -35,13 +35,17 @@ from sweeper.verdict import VERDICT_LABELS
 @click.option("--limit", type=int, default=50, show_default=True)
 def runs_command(runs_dir, serial, verdict, since, until, plan, station, limit) -> None:
     """List filed runs, newest first, with filters."""
+    from sweeper.store.catalog import refresh_unfinished
+
     with open_catalog(runs_dir) as catalog:
+        refresh_unfinished(catalog)
         try:
             records = catalog.find(serial=serial, verdict=verdict, since=since, until=until, plan=plan,
                                    station=station, limit=limit)
         except ValueError as exc:
             err_console.print(f"runs: {exc}", markup=False)
             sys.exit(ExitCode.BAD_INPUT)
+        journals = {r.run_id: catalog.resolve(r).with_suffix(".journal") for r in records}
     table = Table()
     for col in ("run id", "start (UTC)", "serial", "plan", "station", "verdict", "status"):
         table.add_column(col)
@@ -49,6 +53,10 @@ def runs_command(runs_dir, serial, verdict, since, until, plan, station, limit) 
         table.add_row(r.run_id, r.start_utc, r.serial, r.plan_name, r.station, r.verdict, r.status)
     console.print(table)
     console.print(f"{len(records)} run(s)")
+    for r in records:
+        if r.status in ("interrupted", "error") and journals[r.run_id].is_file():
+            console.print(f"{r.status} {r.run_id}: sweeper resume {journals[r.run_id]}", markup=False,
+                          soft_wrap=True, highlight=False)
 
 
 @main.command()
@@ -82,6 +90,10 @@ def show(run: str, runs_dir: str) -> None:
                                                              f"{ident.get('driver')}")
     table.add_row("points", f"{len(frame)}")
     table.add_row("seal", escape(seal.describe()))
+    for n, gap in enumerate((meta.get("summary") or {}).get("interruptions") or [], start=1):
+        table.add_row(f"interruption {n}", escape(f"last write {gap.get('interrupted_utc')}, resumed "
+                                                  f"{gap.get('resumed_utc')}, gap {gap.get('gap_s')} s: "
+                                                  f"{gap.get('reason')}"))
     console.print(table)
     if len(frame):
         failing = frame[frame["verdict"] >= int(Verdict.FAIL_UNCERTAIN)]

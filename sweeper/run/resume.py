@@ -158,7 +158,7 @@ def identity_problems(stored: list[dict[str, Any]], identities: list[Any]) -> tu
 
 
 def _utc(seconds: float) -> str:
-    return datetime.fromtimestamp(seconds, timezone.utc).isoformat(timespec="milliseconds")
+    return datetime.fromtimestamp(seconds, timezone.utc).isoformat(timespec="milliseconds").replace("+00:00", "Z")
 
 
 def interruption_record(contents: JournalContents, last_write_s: float, now: datetime) -> dict[str, Any]:
@@ -181,7 +181,7 @@ def interruption_record(contents: JournalContents, last_write_s: float, now: dat
     last_point = contents.points[-1] if contents.points else None
     return {
         "interrupted_utc": _utc(last_write_s),
-        "resumed_utc": now.isoformat(timespec="milliseconds"),
+        "resumed_utc": now.isoformat(timespec="milliseconds").replace("+00:00", "Z"),
         "gap_s": round(max(0.0, now.timestamp() - last_write_s), 3),
         "reason": reason,
         "points_before": len(contents.points),
@@ -334,6 +334,7 @@ def _resume(spec: RunSpec, journal: Journal, contents: JournalContents, meta: di
         transcript.note(f"resumed at point {resumed_at}: {interruption['reason']}")
         ensure_runfile(outcome.journal_path, outcome.run_path)
         opened["writer"] = writer = RunWriter.resume(outcome.run_path)
+        outcome.catalog_error = file_in_catalog(writer.path, writer.path.parent)  # running again
         if on_start:
             on_start(outcome.run_id, freqs, resumed_at)
         state = engine_state_from_points(outcome.points, freqs)

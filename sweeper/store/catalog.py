@@ -38,12 +38,13 @@ import h5py
 import numpy as np
 
 from sweeper.measure.point import Verdict
+from sweeper.store.journal import journal_in_use
 from sweeper.store.seal import check_journal, check_run
 
 CATALOG_NAME = "catalog.sqlite"
 CATALOG_FORMAT = "sweeper-catalog"
 SCHEMA_VERSION = 1
-STATUSES: tuple[str, ...] = ("complete", "interrupted", "error")
+STATUSES: tuple[str, ...] = ("complete", "interrupted", "error", "running")
 VERIFY_STATES: tuple[str, ...] = ("ok", "missing", "altered", "unreadable", "seal broken")
 
 _T = TypeVar("_T")
@@ -394,6 +395,7 @@ class Catalog:
         station: str | None = None,
         campaign: str | None = None,
         limit: int | None = None,
+        status: str | None = None,
     ) -> list[RunRecord]:
         """Runs matching every filter given, newest first (start time, then run id).
 
@@ -403,7 +405,8 @@ class Catalog:
         """
         where: list[str] = []
         params: list[Any] = []
-        for column, value in (("serial", serial), ("station", station), ("campaign", campaign)):
+        for column, value in (("serial", serial), ("station", station), ("campaign", campaign),
+                              ("status", status)):
             if value is not None:
                 where.append(f"{column} = ?")
                 params.append(value)
@@ -541,7 +544,7 @@ def _read_runfile(path: Path) -> tuple[RunRecord, bool]:
         raise CatalogError(f"{path}: start_utc {root.get('start_utc')!r} is not ISO 8601") from None
     dut = root.get("dut") if isinstance(root.get("dut"), dict) else {}
     finished = bool(root.get("finished", bool(summary)))
-    status = _text(summary.get("status")) or ("complete" if finished else "interrupted")
+    status = _text(summary.get("status")) or ("complete" if finished else unfinished_status(path))
     if status not in STATUSES:
         status = "error"
     try:
@@ -577,6 +580,19 @@ def _read_runfile(path: Path) -> tuple[RunRecord, bool]:
         points_planned=planned,
     )
     return record, retest is not None
+
+
+def unfinished_status(runfile: Path) -> str:
+    """"running" while a process holds the run's journal, else "interrupted"."""
+    return "running" if journal_in_use(runfile.with_suffix(".journal")) else "interrupted"
+
+
+def refresh_unfinished(catalog: Catalog) -> None:
+    """Mark catalogued runs whose process is gone (killed, power lost) as interrupted."""
+    for record in catalog.find(status="running"):
+        path = catalog.resolve(record)
+        if unfinished_status(path) == "interrupted":
+            catalog.add(dataclasses.replace(record, status="interrupted", file_path=str(path)))
 
 
 def record_from_runfile(path: str | os.PathLike[str]) -> RunRecord:
@@ -653,6 +669,10 @@ def _verify_hashes(catalog: Catalog) -> list[VerifyResult]:
             results.append(VerifyResult(record.run_id, path, "unreadable", f"cannot read the file: {exc}"))
             continue
         problem = _hdf5_problem(path)
+        if record.status in ("running", "interrupted") and not problem:
+            results.append(VerifyResult(record.run_id, path, "ok", f"unfinished ({record.status}): the file grows "
+                                        "with the run and is rebuilt from its journal"))
+            continue
         if digest != record.file_sha256:
             detail = f"SHA-256 {digest} differs from the catalogued {record.file_sha256}"
             results.append(VerifyResult(record.run_id, path, "altered", detail + (f"; {problem}" if problem else "")))

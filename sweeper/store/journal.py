@@ -378,6 +378,23 @@ def _lock(path: Path, fd: int) -> None:
         raise JournalError(path, "journal is open for writing by another process") from None
 
 
+def journal_in_use(path: str | os.PathLike[str]) -> bool:
+    """True while a process holds the journal's advisory write lock (its run is going on)."""
+    if fcntl is None:
+        return False
+    try:
+        fd = os.open(path, os.O_RDONLY)
+    except OSError:
+        return False
+    try:
+        fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
+    except OSError:
+        return True
+    finally:
+        os.close(fd)  # closing drops a lock taken here
+    return False
+
+
 class Journal:
     """An open journal for appending. Build with `Journal.create` or `Journal.open_append`."""
 

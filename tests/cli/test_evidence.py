@@ -5,8 +5,10 @@ from __future__ import annotations
 
 import json
 import os
+import signal
 import subprocess
 import sys
+import time
 from pathlib import Path
 
 import h5py
@@ -155,3 +157,44 @@ def test_unreadable_run_without_journal_reads_once_located(tmp_path: Path, comma
     result = sweeper(command, str(bad))
     assert result.returncode == 3
     assert result.stderr.count("cannot read run file") <= 1 and "Traceback" not in result.stderr
+
+
+def test_a_killed_run_is_listed_interrupted_with_its_resume_command_and_the_report_shows_the_gap(
+        tmp_path: Path) -> None:
+    runs = tmp_path / "runs"
+    plan = tmp_path / "long.yaml"  # 4x the demo's points, so the sweep outlasts a `runs` call
+    text = PLAN.read_text()
+    assert "points_per_decade: 5" in text
+    plan.write_text(text.replace("points_per_decade: 5", "points_per_decade: 20"))
+    env = {**os.environ, "COLUMNS": "250"}
+    proc = subprocess.Popen([sys.executable, "-m", "sweeper", "run", str(plan), "--out", str(runs)],
+                            stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL, cwd=REPO, env=env)
+    try:
+        deadline = time.monotonic() + 60
+        while time.monotonic() < deadline:  # kill -9 once three points are journalled
+            journals = list(runs.glob("*.journal"))
+            if journals and journals[0].read_bytes().count(b'"type":"point"') >= 3:
+                break
+            time.sleep(0.005)
+        running = sweeper("runs", "--runs", str(runs))
+        proc.send_signal(signal.SIGKILL)
+        proc.wait(10)
+    finally:
+        if proc.poll() is None:
+            proc.kill()
+    assert "running" in running.stdout, running.stdout  # known from its first moment
+    (journal,) = runs.glob("*.journal")
+    listed = sweeper("runs", "--runs", str(runs))
+    assert listed.returncode == 0
+    assert "interrupted" in listed.stdout, listed.stdout
+    assert f"sweeper resume {journal}" in listed.stdout
+    resumed = sweeper("resume", str(journal))
+    assert resumed.returncode in (0, 1), resumed.stdout + resumed.stderr
+    h5 = journal.with_suffix(".h5")
+    html = tmp_path / "r.html"
+    assert sweeper("report", str(h5), "--out", str(html)).returncode == 0
+    page = html.read_text()
+    assert "Interruptions (1)" in page and "gap (s)" in page
+    shown = sweeper("show", str(h5))
+    assert "interruption 1" in shown.stdout and "gap" in shown.stdout
+    assert sweeper("verify", "--runs", str(runs)).returncode == 0
