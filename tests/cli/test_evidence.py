@@ -6,6 +6,7 @@ from __future__ import annotations
 import json
 import os
 import signal
+import sqlite3
 import subprocess
 import sys
 import time
@@ -176,13 +177,14 @@ def test_a_killed_run_is_listed_interrupted_with_its_resume_command_and_the_repo
             if journals and journals[0].read_bytes().count(b'"type":"point"') >= 3:
                 break
             time.sleep(0.005)
-        running = sweeper("runs", "--runs", str(runs))
+        with sqlite3.connect(runs / "catalog.sqlite") as db:  # read as any SQLite client would
+            running = db.execute("SELECT status FROM runs").fetchall()
         proc.send_signal(signal.SIGKILL)
         proc.wait(10)
     finally:
         if proc.poll() is None:
             proc.kill()
-    assert "running" in running.stdout, running.stdout  # known from its first moment
+    assert running == [("running",)]  # known from its first moment
     (journal,) = runs.glob("*.journal")
     listed = sweeper("runs", "--runs", str(runs))
     assert listed.returncode == 0
