@@ -640,8 +640,8 @@ def verify(catalog: Catalog) -> list[VerifyResult]:
         results.append(VerifyResult(run_id, h5 if h5.is_file() else journal, state,
                                     f"not in the catalog; {check.describe()}"))
     for h5 in sorted(catalog.folder.rglob("*.h5")):
-        if h5.stem in known or h5.name.startswith("."):
-            continue
+        if h5.stem in known or h5.name.startswith(".") or _hdf5_problem(h5):
+            continue  # an HDF5 file that is no run file, and has no journal, is no evidence
         check = check_run(h5)
         state = "seal broken" if check.broken else "ok"
         results.append(VerifyResult(h5.stem, h5, state, f"not in the catalog; {check.describe()}"))

@@ -8,7 +8,8 @@ A run file's seal (`RunWriter.seal`) holds the journal's running hash after its 
 - "sealed": the digest matches, the journal's chain is intact and ends at the sealed value, and
   the file's points, finish state and verdict are the journal's;
 - "behind": sealed and intact, but the journal has records written after the seal (a resume
-  that has not finished yet): the run file is rebuilt from the journal, nothing was altered;
+  that has not finished yet), or its last record is torn: the run file is rebuilt from the
+  journal, nothing was altered;
 - "unsealed": a run file or journal written before seals existed, or a file that was never
   closed (a killed run); nothing can be said either way, and readers trust the journal;
 - "broken": anything else (an edited value or attribute, a damaged journal, a journal that
@@ -108,6 +109,10 @@ def check_run(runfile: str | os.PathLike[str], journal: str | os.PathLike[str] |
                 verdict = (done.get("summary") or {}).get("verdict")
                 if verdict is not None and str(verdict) != str(meta.get("verdict_name")):
                     problems.append(f"the run file says {meta.get('verdict_name')}, the journal {verdict}")
+        elif chain and chain not in contents.chain_values and contents.torn_tail and not problems:
+            notes.append("the journal's last record is torn (a crash); the seal refers to a record after its last "
+                         "complete one, so the run file is rebuilt from the journal")
+            return SealCheck("behind", problems, notes)
         elif chain and chain not in contents.chain_values:
             problems.append(f"the seal's journal hash {chain} is not one the journal ever had")
         elif chain:

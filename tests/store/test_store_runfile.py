@@ -157,6 +157,7 @@ def _journal_and_run(tmp_path: Path, header: dict, points: list[Point], finish: 
         if finish:
             event = journal.append_event(FINISH_EVENT, summary={"verdict": int(Verdict.FAIL), "failed": 3})
             writer.finish(event["summary"], end_utc=event["time_utc"])
+        writer.seal(journal.chain)  # as finish_run does at the end of every run
     return journal_path, run_path
 
 
