@@ -274,6 +274,10 @@ class RunWriter:
             if bool(self._file.attrs["finished"]):
                 raise RunFileError(f"{self._path}: run already finished")
             self._count = int(self._file["points"].attrs["count"])
+            for name in SEAL_ATTRIBUTES:  # written to again: sealed anew when closed by finish_run
+                if name in self._file.attrs:
+                    del self._file.attrs[name]
+            self._file.flush()
         except BaseException:
             self._file.close()
             raise
