@@ -97,6 +97,21 @@ def read_or_exit(path: Path, reader):
         sys.exit(ExitCode.RUN_ERROR)
 
 
+def exit_after_run(outcome) -> None:
+    """Exit with the run's code. After a run-file write failed half-way the HDF5 library holds
+    state it can never write, and its clean-up at interpreter exit can crash the process (h5py
+    issue 914): every record is already durable (journal fsync'ed, catalog committed, run file
+    closed as far as it would), so the process then leaves without that clean-up."""
+    code = int(outcome.exit_code)
+    if getattr(outcome, "hdf5_write_failed", False):
+        console.file.flush()
+        err_console.file.flush()
+        sys.stdout.flush()
+        sys.stderr.flush()
+        os._exit(code)
+    sys.exit(code)
+
+
 ACCEPT_BROKEN_SEAL = click.option(
     "--accept-broken-seal", "accept_broken_seal", is_flag=True,
     help="Go on with a run whose seal or journal disagrees; every page and file written is then marked.")

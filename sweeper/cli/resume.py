@@ -8,7 +8,7 @@ import sys
 import click
 
 from sweeper.cli import main
-from sweeper.cli.common import RUNS_OPTION, console, err_console, flag_names
+from sweeper.cli.common import RUNS_OPTION, console, err_console, exit_after_run, flag_names
 from sweeper.measure.point import Point, Verdict
 from sweeper.plan import format_quantity
 from sweeper.verdict import VERDICT_LABELS
@@ -68,4 +68,4 @@ def resume(run: str, runs_dir: str, plan_path: str | None, salvage: bool) -> Non
         console.print("faults handled: " + ", ".join(f"{kind} x{count}" for kind, count in outcome.faults.items()),
                       markup=False, soft_wrap=True)
     render_outcome(outcome)
-    sys.exit(outcome.exit_code)
+    exit_after_run(outcome)

@@ -28,6 +28,7 @@ from sweeper.cli.common import (
     checked_plan_or_exit,
     console,
     err_console,
+    exit_after_run,
     flag_names,
 )
 from sweeper.measure.point import Flag, Point, Verdict
@@ -111,7 +112,7 @@ def run(plan_path: str, out_dir: str, waveforms: bool) -> None:
         outcome = execute_run(plan, Path(out_dir), on_point=on_point, keep_waveforms=waveforms,
                               should_stop=lambda: stop_requested["flag"])
     render_outcome(outcome)
-    sys.exit(outcome.exit_code)
+    exit_after_run(outcome)
 
 
 def render_outcome(outcome) -> None:

@@ -101,6 +101,7 @@ def finish_run(
     (`ensure_runfile`, by resume or any reader), never written to a failing disk again. A run
     with skipped points, like an incomplete one, never passes.
     """
+    outcome.hdf5_write_failed = bool(write_failed)
     points = outcome.points
     skipped = sum(1 for p in points if p.flags & Flag.SKIPPED)
     outcome.verdict = run_verdict([p.verdict for p in points]) if points else Verdict.NOT_JUDGED
