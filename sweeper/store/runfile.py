@@ -83,7 +83,44 @@ from sweeper.store.fields import FIELD_DEFAULTS, FIELD_KINDS, point_values
 from sweeper.store.journal import _fsync_dir, dumps, loads, read_journal, utc_now_iso
 
 FORMAT_NAME = "sweeper-run"
-FORMAT_VERSION = 1
+FORMAT_VERSION = 2
+READABLE_FORMAT_VERSIONS = (1, 2)
+_DESCRIPTIONS = {
+    "index": "position of the point in the planned sweep, from 0",
+    "frequency_hz": "stimulus frequency of the point (the dimension scale of every /points dataset)",
+    "gain_db": "measured gain 20 log10(A_out / A_in)",
+    "phase_deg": "measured phase of the output relative to the input, wrapped to (-180, 180]",
+    "amplitude_in_v": "fitted peak amplitude, channel 1 (DUT input)",
+    "amplitude_out_v": "fitted peak amplitude, channel 2 (DUT output)",
+    "range_in_v": "vertical full-scale span the measuring instrument used, channel 1 (DUT input)",
+    "range_out_v": "vertical full-scale span the measuring instrument used, channel 2 (DUT output)",
+    "samples": "samples per capture",
+    "captures": "acquisitions averaged into the point",
+    "flags": "bit mask of point flags; names and bits in /codes/flags",
+    "elapsed_s": "time since the run started, on the bench clock",
+    "time_utc": "when the point was finished, UTC ISO 8601 with milliseconds",
+    "verdict": "point verdict code; names and codes in /codes/verdict",
+    "margin_gain_db": "distance to the nearest gain limit: positive inside the limits, negative outside",
+    "margin_phase_deg": "distance to the nearest phase limit: positive inside the limits, negative outside",
+}
+
+
+def describe(name: str) -> str:
+    """A description of a point or prediction column from its name (generic for new columns)."""
+    if name in _DESCRIPTIONS:
+        return _DESCRIPTIONS[name]
+    if name.startswith("u_"):
+        return f"standard uncertainty (k = 1) of {name[2:]}"
+    if name.startswith("U_"):
+        return f"expanded uncertainty of {name[2:]}, U = k u (coverage factor in the dataset k)"
+    if name.endswith("_lo_db") or name.endswith("_lo_deg"):
+        return f"lower limit ({name})"
+    if name.endswith("_hi_db") or name.endswith("_hi_deg"):
+        return f"upper limit ({name})"
+    if name.startswith("model_"):
+        return f"the model's prediction of {name[6:]}"
+    unit = units_of(name)
+    return f"{name.replace('_', ' ')}" + (f" ({unit})" if unit else "")
 FINISH_EVENT = "finished"
 SALVAGE_EVENT = "salvaged"  # journal event of `sweeper resume --salvage`: damaged records moved aside
 RESUMED_EVENT = "resumed"  # journal event of `sweeper resume`: voids the finish event before it
@@ -303,9 +340,23 @@ class RunWriter:
             ds.attrs["units"] = units_of(name)
         points["flags"].attrs["flag_bits"] = json.dumps({m.name: int(m.value) for m in Flag})
         points["verdict"].attrs["verdict_names"] = json.dumps({m.name: int(m.value) for m in Verdict})
+        _describe_columns(points, POINT_FIELDS)
+        codes = f.create_group("codes")
+        for group_name, enum_type, what in (("verdict", Verdict, "point and run verdicts"),
+                                            ("flags", Flag, "point flag bits")):
+            members = [m for m in enum_type if m.name]
+            g = codes.create_group(group_name)
+            g.create_dataset("name", data=np.array([m.name for m in members], dtype=object), dtype=_STR_DTYPE)
+            g.create_dataset("value", data=np.array([int(m.value) for m in members], dtype=np.int64))
+            g["name"].attrs["description"] = f"names of the {what}, row by row beside /codes/{group_name}/value"
+            g["value"].attrs["description"] = f"codes of the {what} as stored in /points/{group_name}"
+            for m in members:
+                points[group_name].attrs[f"code_{m.name}"] = int(m.value)
+        _plain_metadata(f.create_group("metadata"), md)
         pred = f.create_group("prediction")
         for name, arr in {"frequency_hz": freq, **arrays}.items():
             pred.create_dataset(name, data=arr, dtype=np.float64).attrs["units"] = units_of(name)
+        _describe_columns(pred, ["frequency_hz", *arrays])
 
     @property
     def path(self) -> Path:
@@ -370,6 +421,7 @@ class RunWriter:
         except (KeyError, ValueError):
             raise RunFileError(f"summary.verdict: {given!r} is not a Verdict") from None
         _set_attrs(f.require_group("summary").attrs, plain)
+        _plain_interruptions(f, plain)
         _set_attrs(f.attrs, {"end_utc": end_utc or utc_now_iso(), "finished": True, "verdict": int(verdict),
                              "verdict_name": verdict.name})
         f.flush()
@@ -451,13 +503,63 @@ def read_seal(path: str | os.PathLike[str]) -> tuple[str, str, str]:
     return text[0], text[1], actual
 
 
+def _describe_columns(group: h5py.Group, names: Iterable[str]) -> None:
+    """Descriptions, uncertainty kinds and the frequency_hz dimension scale on a group's columns."""
+    scale = group["frequency_hz"]
+    scale.make_scale("frequency_hz")
+    for name in names:
+        ds = group[name]
+        ds.attrs["description"] = describe(name)
+        if name.startswith("u_"):
+            ds.attrs["uncertainty"] = "standard"
+            ds.attrs["coverage_factor"] = 1.0
+        elif name.startswith("U_"):
+            ds.attrs["uncertainty"] = "expanded"
+            ds.attrs["coverage_factor_dataset"] = "k"
+        if name != "frequency_hz":
+            ds.dims[0].attach_scale(scale)
+            ds.dims[0].label = "frequency_hz"
+
+
+def _plain_metadata(group: h5py.Group, md: Mapping[str, Any]) -> None:
+    """What other languages need of the metadata, as plain attributes and string datasets."""
+    group.attrs["description"] = "run metadata as plain values (the root attributes hold the same, some as JSON)"
+    dut = md.get("dut") or {}
+    g = group.create_group("dut")
+    for key in ("board", "serial", "description"):
+        g.attrs[key] = str(dut.get(key) or "")
+    tags = [str(t) for t in (md.get("tags") or [])]
+    ds = group.create_dataset("tags", data=np.array(tags, dtype=object), dtype=_STR_DTYPE)
+    ds.attrs["description"] = "the run's tags"
+    software = group.create_group("software")
+    for key, value in (md.get("software") or {}).items():
+        software.attrs[str(key)] = str(value)
+    instruments = group.create_group("instruments")
+    for i, ident in enumerate(md.get("instruments") or []):
+        g = instruments.create_group(str(i))
+        for key, value in (ident or {}).items():
+            g.attrs[str(key)] = "" if value is None else str(value)
+
+
+def _plain_interruptions(f: h5py.File, summary: Mapping[str, Any]) -> None:
+    found = summary.get("interruptions") or []
+    if "metadata" not in f or not isinstance(found, list):
+        return
+    group = f["metadata"].require_group("interruptions")
+    group.attrs["description"] = "one group per interruption, in order: last write, resume, gap (s), reason"
+    for i, item in enumerate(found):
+        g = group.require_group(str(i))
+        for key, value in (item or {}).items():
+            g.attrs[str(key)] = value if isinstance(value, (int, float, bool)) else str(value)
+
+
 def _check_format(f: h5py.File, path: Path) -> None:
     fmt = f.attrs.get("format")
     if isinstance(fmt, bytes):
         fmt = fmt.decode()
     if fmt != FORMAT_NAME:
         raise RunFileError(f"{path}: not a {FORMAT_NAME} file (format={fmt!r})")
-    if int(f.attrs.get("format_version", -1)) != FORMAT_VERSION:
+    if int(f.attrs.get("format_version", -1)) not in READABLE_FORMAT_VERSIONS:
         raise RunFileError(f"{path}: unsupported format_version {f.attrs.get('format_version')!r}")
 
 

@@ -64,7 +64,7 @@ def test_hdf5_layout_units_and_types(tmp_path, header, points):
     path = tmp_path / "run.h5"
     _write_run(path, header, points[:3])
     with h5py.File(path, "r") as f:
-        assert f.attrs["format"] == "sweeper-run" and f.attrs["format_version"] == 1
+        assert f.attrs["format"] == "sweeper-run" and f.attrs["format_version"] == 2
         assert f["points"].attrs["count"] == 3
         for name in POINT_FIELDS:
             ds = f["points"][name]
