@@ -6,10 +6,10 @@ survive a crash: the journal (`sweeper.store.journal`) is the record of truth, a
 unreadable or stale. Build the journal header with `run_header` and give the same header to
 `RunWriter.from_header`, so a rebuilt file holds the same data as the one written directly.
 
-Run-file layout, format "sweeper-run", format_version 1
+Run-file layout, format "sweeper-run", format_version 2
 =======================================================
 
-Times are ISO 8601 UTC strings. Strings are variable-length UTF-8. Attributes marked (JSON)
+Times are ISO 8601 UTC strings (written as YYYY-MM-DDThh:mm:ss.sssZ). Strings are variable-length UTF-8. Attributes marked (JSON)
 hold JSON text; their names are listed in the `json_attributes` attribute of the same object.
 
 ``/`` (root attributes)
@@ -60,6 +60,30 @@ hold JSON text; their names are listed in the `json_attributes` attribute of the
 ``/summary`` (group, written by `finish`)
     the run summary given to `finish`: scalar values as attributes, lists/dicts/None as (JSON)
     attributes listed in ``json_attributes``.
+
+``/points`` datasets (format_version 2) also carry ``description`` (what the column holds,
+`sweeper.store.runfile.describe`, generic for new columns), a dimension scale: ``frequency_hz``
+is an HDF5 dimension scale and every other point (and prediction) dataset has it attached to
+dimension 0 (label "frequency_hz"); ``u_*`` datasets carry ``uncertainty`` = "standard" and
+``coverage_factor`` = 1.0, ``U_*`` datasets ``uncertainty`` = "expanded" and
+``coverage_factor_dataset`` = "k"; ``verdict`` and ``flags`` carry one int attribute
+``code_<NAME>`` per member.
+
+``/codes/verdict``, ``/codes/flags`` (format_version 2)
+    ``name`` (strings) and ``value`` (int64), row by row: the names beside their codes.
+
+``/metadata`` (format_version 2): the metadata other languages need, as plain values
+    ``dut`` group (attributes board, serial, description); ``tags`` string dataset;
+    ``software`` group (one string attribute per package); ``instruments/<i>`` groups (one string
+    attribute per identity field: role, resource, idn, driver, driver_sha256); after a resumed
+    run, ``interruptions/<i>`` groups (interrupted_utc, resumed_utc, gap_s, reason, ...).
+
+Seal (root attributes, see DEVELOPERS.md "The seal")
+    ``seal_journal_sha256``  the journal's hash chain after its last record when sealed
+    ``seal_content_sha256``  SHA-256 of everything else in the file (`content_digest`)
+    absent while the file is being written (or for a killed run until it is rebuilt).
+
+Version-1 files (no /codes, /metadata, descriptions, scales or seal) still read.
 """
 
 from __future__ import annotations
