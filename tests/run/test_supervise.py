@@ -216,10 +216,11 @@ def test_nearly_full_disk_stops_the_run_before_a_write_can_fail(tmp_path: Path) 
 
 @pytest.mark.skipif(not hasattr(resource, "RLIMIT_FSIZE"), reason="needs POSIX file size limits")
 def test_real_journal_write_failure_in_a_subprocess_keeps_every_point(tmp_path: Path) -> None:
-    """A real failing write: the run's process may not grow any file past 125 kB (RLIMIT_FSIZE;
+    """A real failing write: the run's process may not grow any file past 200 kB (RLIMIT_FSIZE;
     the kernel answers EFBIG, as it answers ENOSPC on a full disk). Frequent simulated timeouts,
     each retried and recorded as a journal event, make the journal outgrow the run file (about
-    110 kB until its 64th point), so the journal is the file whose write fails, mid-run."""
+    140 kB in format_version 2 until its 64th point), so the journal is the file whose write
+    fails, mid-run."""
     plan = tmp_path / "plan.yaml"
     plan.write_text(plan_text(points=60, stop="50 kHz", faults="{timeout: {retries: 1000, backoff: 0 s}}",
                               injections="[{kind: timeout, probability: 60 %, seed: 1, command: 'BLOC?'}]"))
@@ -227,7 +228,7 @@ def test_real_journal_write_failure_in_a_subprocess_keeps_every_point(tmp_path: 
 
     def limit() -> None:
         signal.signal(signal.SIGXFSZ, signal.SIG_IGN)  # EFBIG instead of the default kill
-        resource.setrlimit(resource.RLIMIT_FSIZE, (125_000, 125_000))
+        resource.setrlimit(resource.RLIMIT_FSIZE, (200_000, 200_000))
 
     done = subprocess.run([sys.executable, "-m", "sweeper", "run", str(plan), "--out", str(runs)],
                           capture_output=True, text=True, preexec_fn=limit, env={**os.environ, "COLUMNS": "200"},
