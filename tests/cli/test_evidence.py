@@ -200,3 +200,24 @@ def test_a_killed_run_is_listed_interrupted_with_its_resume_command_and_the_repo
     shown = sweeper("show", str(h5))
     assert "interruption 1" in shown.stdout and "gap" in shown.stdout
     assert sweeper("verify", "--runs", str(runs)).returncode == 0
+
+
+def test_one_time_format_and_point_times_within_the_run(tmp_path: Path) -> None:
+    """UTC ISO 8601 with Z and milliseconds everywhere (common practice for logs, RFC 3339 profile),
+    and every point's time between the run's start and end, on the simulated bench's clock too."""
+    import re
+    from datetime import datetime
+
+    runs = tmp_path / "runs"
+    h5 = filed_run(runs)
+    stamp = re.compile(r"^\d{4}-\d\d-\d\dT\d\d:\d\d:\d\d\.\d{3}Z$")
+    with h5py.File(h5, "r") as f:
+        start, end = f.attrs["start_utc"], f.attrs["end_utc"]
+        times = list(f["points/time_utc"].asstr()[()])
+    transcript = next(runs.glob("*.transcript.jsonl")).read_text().splitlines()
+    journal = [json.loads(line)["record"] for line in h5.with_suffix(".journal").read_text().splitlines()]
+    written = [start, end, *times, *(json.loads(t)["time_utc"] for t in transcript[:20]),
+               *(r["time_utc"] for r in journal if "time_utc" in r), journal[0]["created_utc"]]
+    assert all(stamp.match(t) for t in written), [t for t in written if not stamp.match(t)]
+    when = [datetime.fromisoformat(t) for t in times]
+    assert datetime.fromisoformat(start) <= min(when) and max(when) <= datetime.fromisoformat(end)
