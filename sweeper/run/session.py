@@ -20,7 +20,7 @@ from sweeper.run.supervise import RunAborted, WriteFailed
 from sweeper.run.transcript import Transcript
 from sweeper.store.catalog import Catalog, default_catalog_path
 from sweeper.store.journal import Journal
-from sweeper.store.runfile import FINISH_EVENT, RunWriter
+from sweeper.store.runfile import FINISH_EVENT, RunWriter, file_sha256
 from sweeper.verdict import run_verdict
 
 
@@ -118,6 +118,11 @@ def finish_run(
         **fault_summary,
         **(extra_summary or {}),
     }
+    if outcome.transcript_path is not None and Path(outcome.transcript_path).is_file():
+        try:  # the transcript is closed by now; its hash goes into the chained journal
+            summary["transcript_sha256"] = file_sha256(outcome.transcript_path)
+        except OSError:
+            pass
     if journal is None:
         return
     problems = []

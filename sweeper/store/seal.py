@@ -13,7 +13,8 @@ A run file's seal (`RunWriter.seal`) holds the journal's running hash after its 
 - "unsealed": a run file or journal written before seals existed, or a file that was never
   closed (a killed run); nothing can be said either way, and readers trust the journal;
 - "broken": anything else (an edited value or attribute, a damaged journal, a journal that
-  disagrees with the file). `problems` says what.
+  disagrees with the file, a transcript whose SHA-256 is not the one the journal's finish
+  record holds). `problems` says what.
 
 `notes` lists what the journal records about the run's history (salvaged damage).
 """
@@ -28,6 +29,7 @@ from sweeper.store.journal import JournalError, read_journal
 from sweeper.store.runfile import (
     SALVAGE_EVENT,
     finish_event_in_force,
+    file_sha256,
     frames_identical,
     points_frame,
     read_run,
@@ -66,12 +68,29 @@ def salvage_notes(events: list[dict]) -> list[str]:
             for e in events if e.get("kind") == SALVAGE_EVENT]
 
 
+def transcript_problems(journal: Path, done: dict) -> list[str]:
+    """The transcript against the SHA-256 the journal's finish record holds for it (if any)."""
+    summary = done.get("summary") or {}
+    want, name = summary.get("transcript_sha256"), summary.get("transcript")
+    if not want or not name:
+        return []
+    path = journal.with_name(str(name))
+    if not path.is_file():
+        return [f"{path}: the transcript is missing"]
+    got = file_sha256(path)
+    return [] if got == want else [f"{path}: transcript SHA-256 {got} differs from the journal's {want}"]
+
+
 def check_journal(journal: str | os.PathLike[str]) -> SealCheck:
     """A journal on its own: its checksums and hash chain."""
     try:
         contents = read_journal(journal)
     except JournalError as exc:
         return SealCheck("broken", [f"journal: {exc}"], [])
+    done = finish_event_in_force(contents.events)
+    problems = transcript_problems(Path(journal), done) if done is not None else []
+    if problems:
+        return SealCheck("broken", problems, salvage_notes(contents.events))
     return SealCheck("sealed" if contents.sealed else "unsealed", [], salvage_notes(contents.events))
 
 
@@ -109,6 +128,7 @@ def check_run(runfile: str | os.PathLike[str], journal: str | os.PathLike[str] |
                 verdict = (done.get("summary") or {}).get("verdict")
                 if verdict is not None and str(verdict) != str(meta.get("verdict_name")):
                     problems.append(f"the run file says {meta.get('verdict_name')}, the journal {verdict}")
+                problems += transcript_problems(journal, done)
         elif chain and chain not in contents.chain_values and contents.torn_tail and not problems:
             notes.append("the journal's last record is torn (a crash); the seal refers to a record after its last "
                          "complete one, so the run file is rebuilt from the journal")

@@ -221,3 +221,14 @@ def test_one_time_format_and_point_times_within_the_run(tmp_path: Path) -> None:
     assert all(stamp.match(t) for t in written), [t for t in written if not stamp.match(t)]
     when = [datetime.fromisoformat(t) for t in times]
     assert datetime.fromisoformat(start) <= min(when) and max(when) <= datetime.fromisoformat(end)
+
+
+def test_an_edited_transcript_is_reported_by_verify(tmp_path: Path) -> None:
+    runs = tmp_path / "runs"
+    filed_run(runs)
+    assert sweeper("verify", "--runs", str(runs)).returncode == 0
+    (transcript,) = runs.glob("*.transcript.jsonl")
+    transcript.write_text(transcript.read_text().replace('"role": "scope"', '"role": "sc0pe"', 1))
+    assert '"role": "sc0pe"' in transcript.read_text()  # the edit took
+    checked = sweeper("verify", "--runs", str(runs))
+    assert checked.returncode == 1 and "transcript SHA-256" in checked.stdout, checked.stdout
