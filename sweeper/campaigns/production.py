@@ -164,7 +164,7 @@ def board_test(serial: str, retest: bool, outcome: RunOutcome) -> BoardTest:
         serial=serial,
         run_id=outcome.run_id,
         run_file=str(outcome.run_path),
-        time_utc=datetime.now(UTC).isoformat(timespec="seconds"),
+        time_utc=datetime.now(UTC).isoformat(timespec="milliseconds").replace("+00:00", "Z"),
         result=result_of(outcome),
         verdict=Verdict(outcome.verdict).name,
         status=outcome.status,
@@ -229,7 +229,7 @@ def run_shift(
         raise ValueError("sim_board needs a plan with bench.kind: simulated")
     start = datetime.now(UTC)
     summary = ShiftSummary(new_shift_id(start), plan.name, plan.sha256, plan.metadata.station,
-                           start.isoformat(timespec="seconds"))
+                           start.isoformat(timespec="milliseconds").replace("+00:00", "Z"))
     attempts: dict[str, int] = {}
     try:
         while not summary.ended_by:
@@ -279,7 +279,7 @@ def run_shift(
                 summary.ended_by = "interrupted"
     except KeyboardInterrupt:  # Ctrl-C at a prompt or between boards ends the shift, tally kept
         summary.ended_by = "interrupted"
-    summary.end_utc = datetime.now(UTC).isoformat(timespec="seconds")
+    summary.end_utc = datetime.now(UTC).isoformat(timespec="milliseconds").replace("+00:00", "Z")
     return summary
 
 

@@ -14,11 +14,13 @@ from rich.table import Table
 
 from sweeper.cli import main
 from sweeper.cli.common import (
+    ACCEPT_BROKEN_SEAL,
     RUNS_OPTION,
     console,
     err_console,
     read_or_exit,
     run_paths,
+    sealed_or_exit,
 )
 from sweeper.run.outcome import ExitCode
 
@@ -55,7 +57,9 @@ def _plot_paths(out: Path, kinds: list[str]) -> dict[str, Path]:
 @click.option("--at", "at", multiple=True, help="A frequency to follow over time (drift), e.g. --at 1kHz; repeatable.")
 @click.option("--out", "out_path", type=click.Path(dir_okay=False),
               help="Write an HTML page (.html) or plots (.png, .svg: overlay there, the others beside it).")
-def compare(runs: tuple[str, ...], runs_dir: str, golden: str | None, at: tuple[str, ...], out_path: str | None) -> None:
+@ACCEPT_BROKEN_SEAL
+def compare(runs: tuple[str, ...], runs_dir: str, golden: str | None, at: tuple[str, ...], out_path: str | None,
+            accept_broken_seal: bool) -> None:
     """Compare runs (files or run ids): overlay, difference to a golden run, batch spread, drift."""
     from sweeper.analysis.compare import (
         batch_spread,
@@ -75,6 +79,10 @@ def compare(runs: tuple[str, ...], runs_dir: str, golden: str | None, at: tuple[
                           markup=False)
         sys.exit(ExitCode.BAD_INPUT)
     paths = run_paths(runs, runs_dir)
+    warning = sealed_or_exit(paths + (run_paths((golden,), runs_dir) if golden else []), accept_broken_seal,
+                             "compare")
+    if warning:
+        console.print(escape(warning), style="bold red")
     golden_index = None
     if golden is not None:
         golden_path = run_paths((golden,), runs_dir)[0]
@@ -145,6 +153,10 @@ def compare(runs: tuple[str, ...], runs_dir: str, golden: str | None, at: tuple[
         from sweeper.report.comparison import write_comparison_html
 
         write_comparison_html(loaded, out, golden_index=golden_index, at_hz=at_hz)
+        if warning:
+            from sweeper.report.html import mark_html
+
+            mark_html(out, warning)
         console.print(f"comparison: {out}")
         return
     from sweeper.report.comparison_plots import drift_figure, spread_figure
@@ -158,6 +170,8 @@ def compare(runs: tuple[str, ...], runs_dir: str, golden: str | None, at: tuple[
     if drift_result is not None:
         figures["drift"] = drift_figure(drift_result, coverage_factor=float(loaded[0][1].get("coverage_factor") or 2))
     for kind, path in _plot_paths(out, list(figures)).items():
+        if warning:
+            figures[kind].text(0.01, 0.995, warning[:300], color="#b00020", fontsize=6, va="top", wrap=True)
         save_figure(figures[kind], path)
         console.print(f"{kind}: {path}")
 
@@ -165,7 +179,8 @@ def compare(runs: tuple[str, ...], runs_dir: str, golden: str | None, at: tuple[
 @main.command()
 @click.argument("run")
 @RUNS_OPTION
-def diagnose(run: str, runs_dir: str) -> None:
+@ACCEPT_BROKEN_SEAL
+def diagnose(run: str, runs_dir: str, accept_broken_seal: bool) -> None:
     """Fit the model's part values to a run and name the likely out-of-tolerance part.
 
     Exit 0 when parts within tolerance explain the response, 1 when they do not, 2 when the
@@ -183,6 +198,9 @@ def diagnose(run: str, runs_dir: str) -> None:
     from sweeper.store.runfile import read_run
 
     path = run_paths((run,), runs_dir)[0]
+    warning = sealed_or_exit([path], accept_broken_seal, "diagnose")
+    if warning:
+        console.print(escape(warning), style="bold red")
     frame, meta = read_or_exit(path, read_run)
     try:
         ex = extract(frame, meta)

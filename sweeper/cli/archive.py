@@ -6,6 +6,7 @@ import sys
 from pathlib import Path
 
 import click
+from rich.markup import escape
 from rich.table import Table
 
 from sweeper.cli import main
@@ -15,6 +16,7 @@ from sweeper.cli.common import (
     err_console,
     open_catalog,
     read_or_exit,
+    rebuild_if_needed,
 )
 from sweeper.measure.point import Verdict
 from sweeper.plan import format_quantity
@@ -33,13 +35,17 @@ from sweeper.verdict import VERDICT_LABELS
 @click.option("--limit", type=int, default=50, show_default=True)
 def runs_command(runs_dir, serial, verdict, since, until, plan, station, limit) -> None:
     """List filed runs, newest first, with filters."""
+    from sweeper.store.catalog import refresh_unfinished
+
     with open_catalog(runs_dir) as catalog:
+        refresh_unfinished(catalog)
         try:
             records = catalog.find(serial=serial, verdict=verdict, since=since, until=until, plan=plan,
                                    station=station, limit=limit)
         except ValueError as exc:
             err_console.print(f"runs: {exc}", markup=False)
             sys.exit(ExitCode.BAD_INPUT)
+        journals = {r.run_id: catalog.resolve(r).with_suffix(".journal") for r in records}
     table = Table()
     for col in ("run id", "start (UTC)", "serial", "plan", "station", "verdict", "status"):
         table.add_column(col)
@@ -47,6 +53,10 @@ def runs_command(runs_dir, serial, verdict, since, until, plan, station, limit) 
         table.add_row(r.run_id, r.start_utc, r.serial, r.plan_name, r.station, r.verdict, r.status)
     console.print(table)
     console.print(f"{len(records)} run(s)")
+    for r in records:
+        if r.status in ("interrupted", "error") and journals[r.run_id].is_file():
+            console.print(f"{r.status} {r.run_id}: sweeper resume {journals[r.run_id]}", markup=False,
+                          soft_wrap=True, highlight=False)
 
 
 @main.command()
@@ -57,14 +67,18 @@ def show(run: str, runs_dir: str) -> None:
     from sweeper.store.runfile import read_run
 
     path = Path(run)
-    if not path.is_file():
+    if not path.is_file() and not (path.suffix == ".h5" and path.with_suffix(".journal").is_file()):
         with open_catalog(runs_dir) as catalog:
             try:
                 path = catalog.resolve(catalog.get(run))
             except KeyError as exc:
                 err_console.print(f"show: {exc}", markup=False)
                 sys.exit(ExitCode.BAD_INPUT)
+    rebuild_if_needed(path)
     frame, meta = read_or_exit(path, read_run)
+    from sweeper.store.seal import check_run
+
+    seal = check_run(path)
     table = Table(show_header=False, title=str(path))
     for key in ("run_id", "plan_name", "plan_sha256", "start_utc", "end_utc", "station", "operator", "host",
                 "verdict_name", "finished"):
@@ -75,6 +89,11 @@ def show(run: str, runs_dir: str) -> None:
         table.add_row(f"instrument ({ident.get('role')})", f"{ident.get('resource')}  {ident.get('idn')}  "
                                                              f"{ident.get('driver')}")
     table.add_row("points", f"{len(frame)}")
+    table.add_row("seal", escape(seal.describe()))
+    for n, gap in enumerate((meta.get("summary") or {}).get("interruptions") or [], start=1):
+        table.add_row(f"interruption {n}", escape(f"last write {gap.get('interrupted_utc')}, resumed "
+                                                  f"{gap.get('resumed_utc')}, gap {gap.get('gap_s')} s: "
+                                                  f"{gap.get('reason')}"))
     console.print(table)
     if len(frame):
         failing = frame[frame["verdict"] >= int(Verdict.FAIL_UNCERTAIN)]
@@ -96,7 +115,7 @@ def verify(runs_dir: str) -> None:
     bad = [r for r in results if r.state != "ok"]
     for r in results:
         style = "green" if r.state == "ok" else "bold red"
-        console.print(f"[{style}]{r.state:10}[/] {r.run_id}  {r.path}  {r.detail}")
+        console.print(f"[{style}]{r.state:10}[/] " + escape(f"{r.run_id}  {r.path}  {r.detail}"), soft_wrap=True)
     console.print(f"{len(results)} file(s) checked, {len(bad)} problem(s)")
     sys.exit(ExitCode.FAIL if bad else ExitCode.PASS)
 

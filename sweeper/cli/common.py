@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import os
 import sys
 from pathlib import Path
 
@@ -90,8 +91,80 @@ def read_or_exit(path: Path, reader):
     try:
         return reader(path)
     except Exception as exc:  # an unreadable file is reported, not raised
-        err_console.print(f"{path}: cannot read run file: {exc}", markup=False)
+        text = str(exc)
+        err_console.print(text if text.startswith(str(path)) else f"{path}: cannot read run file: {text}",
+                          markup=False)
         sys.exit(ExitCode.RUN_ERROR)
+
+
+def exit_after_run(outcome) -> None:
+    """Exit with the run's code. After a run-file write failed half-way the HDF5 library holds
+    state it can never write, and its clean-up at interpreter exit can crash the process (h5py
+    issue 914): every record is already durable (journal fsync'ed, catalog committed, run file
+    closed as far as it would), so the process then leaves without that clean-up."""
+    code = int(outcome.exit_code)
+    if getattr(outcome, "hdf5_write_failed", False):
+        console.file.flush()
+        err_console.file.flush()
+        sys.stdout.flush()
+        sys.stderr.flush()
+        os._exit(code)
+    sys.exit(code)
+
+
+ACCEPT_BROKEN_SEAL = click.option(
+    "--accept-broken-seal", "accept_broken_seal", is_flag=True,
+    help="Go on with a run whose seal or journal disagrees; every page and file written is then marked.")
+
+
+def rebuild_if_needed(path: Path) -> None:
+    """A missing or unreadable run file is rebuilt from the journal beside it (an unreadable one
+    is first kept aside as <name>.unreadable-<UTC time>); says so on stderr; exits 3 when it cannot."""
+    from datetime import datetime, timezone
+
+    from sweeper.store.runfile import ensure_runfile, read_run
+    from sweeper.store.seal import journal_for
+
+    journal = journal_for(path)
+    if not journal.is_file():
+        return
+    try:
+        read_run(path)
+        return
+    except Exception as exc:  # noqa: BLE001 - any failure to read means: rebuild from the journal
+        why = "missing" if not path.exists() else f"unreadable ({exc})"
+    try:
+        if path.exists():
+            stamp = datetime.now(timezone.utc).strftime("%Y%m%dT%H%M%SZ")
+            os.replace(path, path.with_name(f"{path.name}.unreadable-{stamp}"))
+        ensure_runfile(journal, path)
+    except Exception as exc:  # noqa: BLE001 - reported, never a traceback
+        err_console.print(f"{path}: run file {why}; it could not be rebuilt from {journal}: {exc}", markup=False)
+        sys.exit(ExitCode.RUN_ERROR)
+    err_console.print(f"{path}: run file {why}; rebuilt from its journal {journal}", markup=False)
+
+
+def sealed_or_exit(paths: list[Path], accept_broken: bool, command: str) -> str:
+    """Rebuild missing run files, then check each run's seal (sweeper.store.seal.check_run).
+    Returns "" when every seal holds (or the run predates seals); with a broken one, exits 3
+    unless accept_broken, and then returns the warning every written page and file must carry."""
+    from sweeper.store.seal import check_run
+
+    warnings = []
+    for path in paths:
+        rebuild_if_needed(path)
+        check = check_run(path)
+        if check.broken:
+            warnings.append(f"{path.name}: {check.describe()}")
+    if not warnings:
+        return ""
+    for line in warnings:
+        err_console.print(line, markup=False)
+    if not accept_broken:
+        err_console.print(f"{command}: refused (a broken seal); --accept-broken-seal goes on and marks "
+                          "everything written", markup=False)
+        sys.exit(ExitCode.RUN_ERROR)
+    return "BROKEN SEAL - this evidence disagrees with its seal or journal: " + " | ".join(warnings)
 
 
 def run_paths(runs: tuple[str, ...], runs_dir: str) -> list[Path]:
@@ -99,8 +172,8 @@ def run_paths(runs: tuple[str, ...], runs_dir: str) -> list[Path]:
     paths: list[Path] = []
     for run in runs:
         path = Path(run)
-        if path.is_file():
-            paths.append(path)
+        if path.is_file() or (path.suffix == ".h5" and path.with_suffix(".journal").is_file()):
+            paths.append(path)  # a missing run file beside its journal is rebuilt by the reader
             continue
         with open_catalog(runs_dir) as cat:
             try:

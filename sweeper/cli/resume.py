@@ -8,7 +8,7 @@ import sys
 import click
 
 from sweeper.cli import main
-from sweeper.cli.common import RUNS_OPTION, console, err_console, flag_names
+from sweeper.cli.common import RUNS_OPTION, console, err_console, exit_after_run, flag_names
 from sweeper.measure.point import Point, Verdict
 from sweeper.plan import format_quantity
 from sweeper.verdict import VERDICT_LABELS
@@ -19,7 +19,10 @@ from sweeper.verdict import VERDICT_LABELS
 @RUNS_OPTION
 @click.option("--plan", "plan_path", default=None, type=click.Path(dir_okay=False),
               help="The plan file the run was started with: refused unless its SHA-256 is the run's.")
-def resume(run: str, runs_dir: str, plan_path: str | None) -> None:
+@click.option("--salvage", is_flag=True,
+              help="Go on from the last good journal record when a later one is damaged (the damaged bytes are "
+                   "kept in a file beside the journal and the salvage is recorded in the run).")
+def resume(run: str, runs_dir: str, plan_path: str | None, salvage: bool) -> None:
     """Finish an interrupted run (RUN: its .journal or .h5 file, or its run id in --runs).
 
     Checks the plan (by hash) and the instruments (by *IDN? and driver file), records the
@@ -49,7 +52,7 @@ def resume(run: str, runs_dir: str, plan_path: str | None) -> None:
 
     try:
         result = resume_run(run, runs_dir, plan_path=plan_path, on_start=on_start, on_point=on_point,
-                            should_stop=lambda: stop_requested["flag"])
+                            should_stop=lambda: stop_requested["flag"], salvage=salvage)
     except ResumeRefused as exc:
         err_console.print(f"cannot resume {run}: {exc}", markup=False)
         sys.exit(exc.exit_code)
@@ -65,4 +68,4 @@ def resume(run: str, runs_dir: str, plan_path: str | None) -> None:
         console.print("faults handled: " + ", ".join(f"{kind} x{count}" for kind, count in outcome.faults.items()),
                       markup=False, soft_wrap=True)
     render_outcome(outcome)
-    sys.exit(outcome.exit_code)
+    exit_after_run(outcome)

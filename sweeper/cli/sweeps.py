@@ -9,6 +9,7 @@ from pathlib import Path
 
 import click
 import numpy as np
+from rich.markup import escape
 from rich.panel import Panel
 from rich.progress import (
     BarColumn,
@@ -27,9 +28,10 @@ from sweeper.cli.common import (
     checked_plan_or_exit,
     console,
     err_console,
+    exit_after_run,
     flag_names,
 )
-from sweeper.measure.point import Point, Verdict
+from sweeper.measure.point import Flag, Point, Verdict
 from sweeper.plan import format_quantity
 from sweeper.verdict import VERDICT_LABELS, VERDICT_MEANINGS
 
@@ -110,7 +112,7 @@ def run(plan_path: str, out_dir: str, waveforms: bool) -> None:
         outcome = execute_run(plan, Path(out_dir), on_point=on_point, keep_waveforms=waveforms,
                               should_stop=lambda: stop_requested["flag"])
     render_outcome(outcome)
-    sys.exit(outcome.exit_code)
+    exit_after_run(outcome)
 
 
 def render_outcome(outcome) -> None:
@@ -144,7 +146,12 @@ def render_outcome(outcome) -> None:
     if outcome.error:
         err_console.print(f"run {outcome.status}: {outcome.error}", markup=False)
     v = Verdict(outcome.verdict)
-    console.print(Panel(f"{VERDICT_LABELS[v]}  —  {VERDICT_MEANINGS[v]}", style=VERDICT_STYLE[v],
+    meaning = VERDICT_MEANINGS[v]
+    if outcome.status != "complete" and outcome.journal_path.exists():
+        measured = sum(1 for p in pts if not (p.flags & Flag.SKIPPED))
+        meaning = (f"run {outcome.status} after {measured} measured point(s); "
+                   f"finish it with: sweeper resume {outcome.journal_path}")
+    console.print(Panel(escape(f"{VERDICT_LABELS[v]}  —  {meaning}"), style=VERDICT_STYLE[v],
                         title=f"verdict ({outcome.status})"))
     if outcome.journal_path.exists():
         console.print(f"run file: {outcome.run_path}")

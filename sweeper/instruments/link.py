@@ -187,7 +187,7 @@ class Link:
         else:
             stats.queries += 1
         stats.per_role[self.role] = stats.per_role.get(self.role, 0) + 1
-        time_utc = datetime.now(timezone.utc).isoformat(timespec="milliseconds")
+        time_utc = datetime.now(timezone.utc).isoformat(timespec="milliseconds").replace("+00:00", "Z")
         start = time.perf_counter()
         answer_text = ""
         error: str | None = None

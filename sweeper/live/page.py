@@ -43,6 +43,7 @@ figure img { display: block; margin: 0 auto; max-width: 100%; max-height: calc(1
 <div class="row"><div class="progress" role="progressbar" aria-label="points measured"><div id="bar"></div></div>
 <span id="count">waiting for the journal\u2026</span><span id="status"></span></div>
 <div class="row"><ul class="verdicts" id="verdicts"></ul><span class="muted" id="last"></span></div>
+<ul class="muted" id="interruptions"></ul>
 <figure><img id="plot" src="plot.svg?v=0" alt="Bode plot of the run so far"></figure>
 <script>
 "use strict";
@@ -67,6 +68,14 @@ function update(s) {
   status.className = "";
   status.textContent = s.finished ? (s.status + (s.run_verdict ? ", verdict " + s.run_verdict : "")) : "running";
   if (s.error) { status.textContent += " (" + s.error + ")"; }
+  const gaps = document.getElementById("interruptions");
+  gaps.replaceChildren();
+  for (const g of (s.interruptions || [])) {
+    const li = document.createElement("li");
+    li.textContent = "interrupted: last write " + g.interrupted_utc + ", resumed " + g.resumed_utc +
+      ", gap " + fmt(g.gap_s, 4) + " s (" + g.reason + ")";
+    gaps.appendChild(li);
+  }
   const list = document.getElementById("verdicts");
   list.replaceChildren();
   for (const [label, n] of Object.entries(s.verdicts)) {

@@ -19,7 +19,7 @@ import pandas as pd
 from sweeper.verdict import VERDICT_LABELS
 from sweeper.measure.point import Verdict
 from sweeper.store.journal import read_journal
-from sweeper.store.runfile import FINISH_EVENT, points_frame, read_run
+from sweeper.store.runfile import FINISH_EVENT, RESUMED_EVENT, points_frame, read_run
 
 JOURNAL_SUFFIX = ".journal"
 RUNFILE_SUFFIX = ".h5"
@@ -65,6 +65,10 @@ class Snapshot:
             "last": last,
             "version": self.version,
             "error": self.error,
+            "interruptions": [{k: (v if isinstance(v, (int, float)) else str(v)) for k, v in i.items()
+                               if k in ("interrupted_utc", "resumed_utc", "gap_s", "reason")}
+                              for i in (md.get("interruptions") or summary.get("interruptions") or [])
+                              if isinstance(i, dict)],
         }
 
 
@@ -93,6 +97,8 @@ def journal_snapshot(path: str | os.PathLike[str]) -> Snapshot:
     metadata["finished"] = finish is not None
     if finish:
         metadata["end_utc"] = finish.get("time_utc", "")
+    metadata["interruptions"] = [{k: v for k, v in e.items() if k != "kind"} for e in contents.events
+                                 if e.get("kind") == RESUMED_EVENT]
     frame = points_frame(contents.points)
     status = str(metadata["summary"].get("status") or "finished") if finish else "running"
     return Snapshot(frame, metadata, len(contents.points), len(planned), finish is not None, status,

@@ -8,7 +8,7 @@ judges each point it is handed: sweeper.verdict).
 from __future__ import annotations
 
 from collections.abc import Callable, Sequence
-from datetime import datetime, timedelta, timezone
+from datetime import datetime, timezone
 
 from sweeper.instruments.roles import Capture, Scope, Source
 from sweeper.measure.meter import measure_with_meter
@@ -21,6 +21,11 @@ from sweeper.measure.waveform import measure_with_scope
 #: What changing the capture window costs in instrument transactions, s (a few LAN round trips:
 #: common practice for SCPI over a network). The engine keeps a longer window when cheaper.
 WINDOW_CHANGE_COST_S = 0.01
+
+
+def _wall_utc() -> str:
+    """Now, UTC ISO 8601 with milliseconds and Z."""
+    return datetime.now(timezone.utc).isoformat(timespec="milliseconds").replace("+00:00", "Z")
 
 
 class SweepStopped(Exception):
@@ -81,10 +86,10 @@ def sweep(
     ranges of a point (autorange corrects any misprediction). Returns the engine state so a
     caller can continue. The source output is left as it was: the caller owns switching it off.
     A point records the frequency really used (a decade frequency may be nudged, IEEE Std
-    1241 practice), which is the frequency it must be judged at.
+    1241 practice), which is the frequency it must be judged at. A point's time_utc is the wall
+    clock when it was finished (start_utc is accepted for callers and not needed for that).
     """
     state = state or EngineState()
-    start_utc = start_utc or datetime.now(timezone.utc)
     t0 = instruments.clock.now_s() - elapsed_offset_s
     for index in range(start_index, len(frequencies_hz)):
         if should_stop is not None and should_stop():
@@ -104,7 +109,7 @@ def sweep(
             index=index,
             frequency_hz=f,
             elapsed_s=elapsed,
-            time_utc=(start_utc + timedelta(seconds=elapsed)).isoformat(timespec="milliseconds"),
+            time_utc=_wall_utc(),  # the wall clock: within the run's span on any bench clock, simulated too
             **measurement.fields(),
         )
         on_point(point, capture if settings.keep_waveforms else None)

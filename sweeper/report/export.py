@@ -106,15 +106,19 @@ def _require_pyarrow() -> Any:
 
 
 def export_points(
-    frame: pd.DataFrame, metadata: Mapping[str, Any], path: str | Path, fmt: str | None = None
+    frame: pd.DataFrame, metadata: Mapping[str, Any], path: str | Path, fmt: str | None = None,
+    warning: str = "",
 ) -> Path:
     """Write the points with unit-bearing column names as CSV, JSON or Parquet; returns the path.
 
-    fmt: "csv" | "json" | "parquet"; None takes it from the file suffix.
+    fmt: "csv" | "json" | "parquet"; None takes it from the file suffix. A warning (a broken
+    seal) goes into a first column `seal_warning` on every row.
     """
     path = Path(path)
     chosen = _format_of(path, fmt)
     table = points_for_export(frame)
+    if warning:
+        table.insert(0, "seal_warning", warning)
     if chosen == "csv":
         table.to_csv(path, index=False, float_format=_float_text, na_rep="NaN", lineterminator="\n")
     elif chosen == "json":
@@ -208,11 +212,15 @@ def summary_json(frame: pd.DataFrame, metadata: Mapping[str, Any], *, file_sha25
 
 
 def write_summary_json(
-    frame: pd.DataFrame, metadata: Mapping[str, Any], path: str | Path, *, file_sha256: str = ""
+    frame: pd.DataFrame, metadata: Mapping[str, Any], path: str | Path, *, file_sha256: str = "",
+    warning: str = "",
 ) -> Path:
-    """Write `summary_json` as indented standard JSON (UTF-8); returns the path."""
+    """Write `summary_json` as indented standard JSON (UTF-8), with `seal_warning` first when
+    given; returns the path."""
     path = Path(path)
     data = summary_json(frame, metadata, file_sha256=file_sha256)
+    if warning:
+        data = {"seal_warning": warning, **data}
     path.write_text(json.dumps(data, indent=2, allow_nan=False, ensure_ascii=False) + "\n", encoding="utf-8")
     return path
 

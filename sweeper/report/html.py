@@ -337,6 +337,20 @@ def _counts_text(frame: pd.DataFrame) -> str:
     return f"{failing} of {n} point{'s' if n != 1 else ''} failing"
 
 
+def _interruptions_html(metadata: Mapping[str, Any]) -> str:
+    """The run's interruptions (from its summary, written by `sweeper resume`): when the last
+    record was written, when the run went on, the gap (s) and why; "" when there were none."""
+    found = (metadata.get("summary") or {}).get("interruptions") or []
+    if not isinstance(found, list) or not found:
+        return ""
+    rows = "".join(
+        f"<tr><td>{esc(i.get('interrupted_utc'))}</td><td>{esc(i.get('resumed_utc'))}</td>"
+        f"<td>{esc(i.get('gap_s'))}</td><td>{esc(i.get('points_before'))}</td><td>{esc(i.get('reason'))}</td></tr>"
+        for i in found if isinstance(i, dict))
+    return (f'<h2 class="interruptions">Interruptions ({len(found)})</h2><table><tr><th>last write (UTC)</th>'
+            f"<th>resumed (UTC)</th><th>gap (s)</th><th>points before</th><th>reason</th></tr>{rows}</table>")
+
+
 def _run_section(index: int, frame: pd.DataFrame, metadata: Mapping[str, Any], file_sha256: str,
                  image_format: str, first_page: bool) -> str:
     verdict = run_verdict_of(frame, metadata)
@@ -361,6 +375,7 @@ def _run_section(index: int, frame: pd.DataFrame, metadata: Mapping[str, Any], f
                        caption)
         + "<h2>Derived figures</h2>" + _figures_table(frame, metadata)
         + "<h2>Parameter extraction</h2>" + _extraction_html(frame, metadata)
+        + _interruptions_html(metadata)
         + "<h2>Run record</h2>" + _meta_table(frame, metadata, file_sha256)
         + "<h3>Instruments</h3>" + _instruments_table(metadata)
         + "<h3>Software</h3>" + _software_table(metadata)
@@ -429,6 +444,15 @@ def render_html(
         '<meta name="viewport" content="width=device-width, initial-scale=1">'
         f"<title>{esc(title)}</title><style>{CSS}</style></head><body>\n" + "\n".join(body) + "\n</body></html>\n"
     )
+
+
+def mark_html(path: str | Path, warning: str) -> None:
+    """Put a warning banner at the top of a written page (e.g. a broken seal), text escaped."""
+    path = Path(path)
+    page = path.read_text(encoding="utf-8")
+    banner = (f'<p class="seal-warning" style="background:#b00020;color:#fff;padding:.6em;font-weight:bold">'
+              f"{esc(warning)}</p>\n")
+    path.write_text(page.replace("<body>\n", "<body>\n" + banner, 1), encoding="utf-8")
 
 
 def write_html(

@@ -48,6 +48,7 @@ class RunOutcome:
     faults: dict = field(default_factory=dict)  # fault kind -> faults met (sweeper.run.supervise)
     output_off: bool | None = None  # the source took 'output off' as the bench closed
     sim_output_on: bool | None = None  # a simulated bench's generator output after the run
+    hdf5_write_failed: bool = False  # a run-file write failed half-way: HDF5's own exit clean-up may crash
 
     @property
     def exit_code(self) -> ExitCode:

@@ -39,8 +39,9 @@ from sweeper.run.session import file_in_catalog, finish_run, run_on_bench
 from sweeper.run.spec import RunSpec, bench_for_run, run_spec
 from sweeper.run.supervise import Supervisor
 from sweeper.run.transcript import Transcript, transcript_path
-from sweeper.store.journal import Journal, JournalContents, JournalError
-from sweeper.store.runfile import FINISH_EVENT, RESUMED_EVENT, RunWriter, ensure_runfile
+from sweeper.store.journal import Journal, JournalContents, JournalError, cut_damage, find_damage
+from sweeper.store.runfile import FINISH_EVENT, RESUMED_EVENT, SALVAGE_EVENT, RunWriter, ensure_runfile
+from sweeper.store.seal import check_journal, check_run
 from sweeper.verdict import Limits
 from sweeper.verdict.prediction import model_response
 
@@ -157,7 +158,7 @@ def identity_problems(stored: list[dict[str, Any]], identities: list[Any]) -> tu
 
 
 def _utc(seconds: float) -> str:
-    return datetime.fromtimestamp(seconds, timezone.utc).isoformat(timespec="milliseconds")
+    return datetime.fromtimestamp(seconds, timezone.utc).isoformat(timespec="milliseconds").replace("+00:00", "Z")
 
 
 def interruption_record(contents: JournalContents, last_write_s: float, now: datetime) -> dict[str, Any]:
@@ -180,7 +181,7 @@ def interruption_record(contents: JournalContents, last_write_s: float, now: dat
     last_point = contents.points[-1] if contents.points else None
     return {
         "interrupted_utc": _utc(last_write_s),
-        "resumed_utc": now.isoformat(timespec="milliseconds"),
+        "resumed_utc": now.isoformat(timespec="milliseconds").replace("+00:00", "Z"),
         "gap_s": round(max(0.0, now.timestamp() - last_write_s), 3),
         "reason": reason,
         "points_before": len(contents.points),
@@ -207,19 +208,37 @@ def resume_run(
     on_start: Callable[[str, np.ndarray, int], None] | None = None,
     on_point: Callable[[Point], None] | None = None,
     should_stop: Callable[[], bool] | None = None,
+    salvage: bool = False,
 ) -> ResumeOutcome:
     """Resume RUN (see the module docstring). ResumeRefused before anything is measured or
     written when the run cannot be resumed; otherwise never raises for instrument faults.
-    on_start(run_id, planned frequencies, index resumed at) runs once the checks passed."""
+    on_start(run_id, planned frequencies, index resumed at) runs once the checks passed.
+
+    A run file whose seal disagrees with itself or its journal is refused, and nothing is
+    written. With salvage, a journal damaged after its header is cut back to its last good
+    record, the damaged bytes kept in `<run_id>.damaged-<UTC time>.bin` beside it (and the old
+    run file as `<run_id>.h5.before-salvage`), and a `salvaged` event records it."""
     journal_path, run_path = locate_run(run, runs_dir)
+    salvaged: dict[str, Any] = {}
+    if salvage:
+        salvaged = _salvage(journal_path, run_path)
+    if run_path.is_file() and not salvaged:
+        check = check_run(run_path, journal_path)
+        if check.broken and not check_journal(journal_path).broken:  # a damaged journal is told below
+            raise ResumeRefused(f"{run_path}: {check.describe()}; refused, nothing was written "
+                                "(the run file and journal are left as they are)", EXIT_RUN_ERROR)
     try:
         last_write_s = journal_path.stat().st_mtime
         journal = Journal.open_append(journal_path)
     except (OSError, JournalError) as exc:
         in_use = "another process" in str(exc)
-        raise ResumeRefused(str(exc) + ("" if not in_use else " (is the run still going?)"),
-                            EXIT_RUN_ERROR if in_use else EXIT_BAD_INPUT) from None
+        hint = " (is the run still going?)" if in_use else (
+            "" if exc.__class__ is OSError or getattr(exc, "line", None) in (None, 1)
+            else "; `sweeper resume --salvage` goes on from the last good record, keeping the damaged bytes aside")
+        raise ResumeRefused(str(exc) + hint, EXIT_RUN_ERROR if in_use else EXIT_BAD_INPUT) from None
     try:
+        if salvaged:
+            journal.append_event(SALVAGE_EVENT, **salvaged)
         contents = journal.contents
         header = contents.header
         meta = header.get("metadata") or {}
@@ -251,6 +270,23 @@ def resume_run(
         if not journal.closed:
             journal.close()
         raise
+
+
+def _salvage(journal_path: Path, run_path: Path) -> dict[str, Any]:
+    """Move a damaged journal tail aside (see `resume_run`); {} when the journal reads whole."""
+    try:
+        _, damage = find_damage(journal_path)
+    except JournalError as exc:
+        raise ResumeRefused(f"{exc}; nothing can be salvaged without a sound header") from None
+    if damage is None:
+        return {}
+    stamp = datetime.now(timezone.utc).strftime("%Y%m%dT%H%M%S.%fZ")
+    keep = journal_path.with_name(f"{journal_path.stem}.damaged-{stamp}.bin")
+    cut_damage(journal_path, damage, keep)
+    if run_path.is_file():
+        os.replace(run_path, run_path.with_name(run_path.name + ".before-salvage"))
+    return {"line": damage.line, "offset": damage.offset, "bytes": len(damage.data),
+            "sha256": hashlib.sha256(damage.data).hexdigest(), "kept_in": keep.name, "reason": damage.message}
 
 
 def _already_complete(outcome: RunOutcome, contents: JournalContents, done: dict[str, Any]) -> ResumeOutcome:
@@ -298,6 +334,7 @@ def _resume(spec: RunSpec, journal: Journal, contents: JournalContents, meta: di
         transcript.note(f"resumed at point {resumed_at}: {interruption['reason']}")
         ensure_runfile(outcome.journal_path, outcome.run_path)
         opened["writer"] = writer = RunWriter.resume(outcome.run_path)
+        outcome.catalog_error = file_in_catalog(writer.path, writer.path.parent)  # running again
         if on_start:
             on_start(outcome.run_id, freqs, resumed_at)
         state = engine_state_from_points(outcome.points, freqs)

@@ -24,7 +24,7 @@ from sweeper.measure.engine import prepare_source, sweep
 from sweeper.measure.point import Point, Verdict
 from sweeper.measure.settings import EngineState, Instruments
 from sweeper.run.outcome import RunOutcome
-from sweeper.run.session import finish_run, run_on_bench
+from sweeper.run.session import file_in_catalog, finish_run, run_on_bench
 from sweeper.run.spec import RunSpec, bench_for_run, run_metadata, run_spec
 from sweeper.run.supervise import Supervisor, estimate_run_bytes, space_problem
 from sweeper.run.transcript import Transcript, transcript_path
@@ -123,6 +123,7 @@ def execute_spec(
         header = run_header(meta, freqs, prediction)
         opened["journal"] = journal = Journal.create(outcome.journal_path, header)
         opened["writer"] = writer = RunWriter.from_header(outcome.run_path, header)
+        outcome.catalog_error = file_in_catalog(writer.path, writer.path.parent)  # known from its first moment
         if on_start:
             on_start(run_id, freqs)
         opened["supervisor"] = supervisor = Supervisor(

@@ -20,7 +20,7 @@ from sweeper.run.supervise import RunAborted, WriteFailed
 from sweeper.run.transcript import Transcript
 from sweeper.store.catalog import Catalog, default_catalog_path
 from sweeper.store.journal import Journal
-from sweeper.store.runfile import FINISH_EVENT, RunWriter
+from sweeper.store.runfile import FINISH_EVENT, RunWriter, file_sha256
 from sweeper.verdict import run_verdict
 
 
@@ -101,6 +101,7 @@ def finish_run(
     (`ensure_runfile`, by resume or any reader), never written to a failing disk again. A run
     with skipped or clipped (not judged) points, like an incomplete one, never passes.
     """
+    outcome.hdf5_write_failed = bool(write_failed)
     points = outcome.points
     skipped = sum(1 for p in points if p.flags & Flag.SKIPPED)
     clipped = sum(1 for p in points if p.flags & Flag.CLIPPED)
@@ -118,6 +119,11 @@ def finish_run(
         **fault_summary,
         **(extra_summary or {}),
     }
+    if outcome.transcript_path is not None and Path(outcome.transcript_path).is_file():
+        try:  # the transcript is closed by now; its hash goes into the chained journal
+            summary["transcript_sha256"] = file_sha256(outcome.transcript_path)
+        except OSError:
+            pass
     if journal is None:
         return
     problems = []
@@ -132,6 +138,8 @@ def finish_run(
         try:
             if event is not None and not write_failed:
                 writer.finish(event["summary"], end_utc=event["time_utc"])
+                if journal.sealed:
+                    writer.seal(journal.chain)
         except Exception as exc:  # noqa: BLE001
             problems.append(f"the run file could not be finished ({exc})")
         try:

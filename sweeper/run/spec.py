@@ -11,7 +11,7 @@ import platform
 import socket
 from collections.abc import Callable, Mapping
 from dataclasses import dataclass, replace
-from datetime import datetime
+from datetime import datetime, timezone
 from typing import TYPE_CHECKING, Any
 
 import numpy as np
@@ -239,7 +239,7 @@ def run_metadata(spec: RunSpec, run_id: str, start: datetime, campaign: str | No
         **spec.metadata,
         "host": socket.gethostname(),
         "platform": platform.platform(),
-        "start_utc": start.isoformat(timespec="seconds"),
+        "start_utc": start.astimezone(timezone.utc).isoformat(timespec="milliseconds").replace("+00:00", "Z"),
         "keep_waveforms": bool(spec.keep_waveforms),  # `sweeper resume` goes on the same way
     }
 

@@ -24,7 +24,7 @@ import time
 from collections import Counter
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field
-from datetime import datetime, timedelta
+from datetime import datetime, timedelta, timezone
 from pathlib import Path
 from typing import Any
 
@@ -279,7 +279,7 @@ class Supervisor:
             index=index, frequency_hz=float(self.frequencies_hz[index]), gain_db=nan, phase_deg=nan,
             u_gain_db=nan, u_phase_deg=nan, amplitude_in_v=nan, amplitude_out_v=nan,
             flags=int(Flag.SKIPPED | Flag.FAULT), elapsed_s=elapsed,
-            time_utc=(self.start_utc + timedelta(seconds=elapsed)).isoformat(timespec="milliseconds"),
+            time_utc=datetime.now(timezone.utc).isoformat(timespec="milliseconds").replace("+00:00", "Z"),
         ))
 
     # -- faults -----------------------------------------------------------------------

@@ -46,7 +46,7 @@ class Transcript:
 
     def note(self, text: str) -> None:
         """Mark a moment of the run (e.g. 'resumed at point 12')."""
-        now = datetime.now(timezone.utc).isoformat(timespec="milliseconds")
+        now = datetime.now(timezone.utc).isoformat(timespec="milliseconds").replace("+00:00", "Z")
         self._write({"time_utc": now, "note": _cut(text)})
 
     def _write(self, record: dict) -> None:

@@ -38,12 +38,14 @@ import h5py
 import numpy as np
 
 from sweeper.measure.point import Verdict
+from sweeper.store.journal import journal_in_use
+from sweeper.store.seal import check_journal, check_run
 
 CATALOG_NAME = "catalog.sqlite"
 CATALOG_FORMAT = "sweeper-catalog"
 SCHEMA_VERSION = 1
-STATUSES: tuple[str, ...] = ("complete", "interrupted", "error")
-VERIFY_STATES: tuple[str, ...] = ("ok", "missing", "altered", "unreadable")
+STATUSES: tuple[str, ...] = ("complete", "interrupted", "error", "running")
+VERIFY_STATES: tuple[str, ...] = ("ok", "missing", "altered", "unreadable", "seal broken")
 
 _T = TypeVar("_T")
 _SQLITE_BUSY, _SQLITE_LOCKED = 5, 6
@@ -393,6 +395,7 @@ class Catalog:
         station: str | None = None,
         campaign: str | None = None,
         limit: int | None = None,
+        status: str | None = None,
     ) -> list[RunRecord]:
         """Runs matching every filter given, newest first (start time, then run id).
 
@@ -402,7 +405,8 @@ class Catalog:
         """
         where: list[str] = []
         params: list[Any] = []
-        for column, value in (("serial", serial), ("station", station), ("campaign", campaign)):
+        for column, value in (("serial", serial), ("station", station), ("campaign", campaign),
+                              ("status", status)):
             if value is not None:
                 where.append(f"{column} = ?")
                 params.append(value)
@@ -540,7 +544,7 @@ def _read_runfile(path: Path) -> tuple[RunRecord, bool]:
         raise CatalogError(f"{path}: start_utc {root.get('start_utc')!r} is not ISO 8601") from None
     dut = root.get("dut") if isinstance(root.get("dut"), dict) else {}
     finished = bool(root.get("finished", bool(summary)))
-    status = _text(summary.get("status")) or ("complete" if finished else "interrupted")
+    status = _text(summary.get("status")) or ("complete" if finished else unfinished_status(path))
     if status not in STATUSES:
         status = "error"
     try:
@@ -578,6 +582,19 @@ def _read_runfile(path: Path) -> tuple[RunRecord, bool]:
     return record, retest is not None
 
 
+def unfinished_status(runfile: Path) -> str:
+    """"running" while a process holds the run's journal, else "interrupted"."""
+    return "running" if journal_in_use(runfile.with_suffix(".journal")) else "interrupted"
+
+
+def refresh_unfinished(catalog: Catalog) -> None:
+    """Mark catalogued runs whose process is gone (killed, power lost) as interrupted."""
+    for record in catalog.find(status="running"):
+        path = catalog.resolve(record)
+        if unfinished_status(path) == "interrupted":
+            catalog.add(dataclasses.replace(record, status="interrupted", file_path=str(path)))
+
+
 def record_from_runfile(path: str | os.PathLike[str]) -> RunRecord:
     """The catalog record of a run file: its root metadata and summary, and its SHA-256.
 
@@ -601,11 +618,45 @@ def _hdf5_problem(path: Path) -> str:
 
 
 def verify(catalog: Catalog) -> list[VerifyResult]:
-    """Re-hash every catalogued run file, in catalog order (newest first).
+    """Re-hash every catalogued run file, in catalog order (newest first), and check its seal
+    against the file and its journal (`sweeper.store.seal.check_run`); then check every run
+    file and journal in the catalog's folder that the catalog does not hold.
 
     "missing": no file at the path; "altered": its SHA-256 differs from the catalogued one;
-    "unreadable": the bytes cannot be read, or they match but HDF5 cannot open them; else "ok".
+    "unreadable": the bytes cannot be read, or they match but HDF5 cannot open them; "seal
+    broken": the file or its journal disagrees with the seal; else "ok" (the detail says
+    whether it is sealed, and any salvage the journal records).
     """
+    results = [_with_seal(r) for r in _verify_hashes(catalog)]
+    known = {r.run_id for r in results}
+    for journal in sorted(catalog.folder.rglob("*.journal")):
+        run_id = journal.stem
+        if run_id in known or journal.name.startswith("."):
+            continue
+        known.add(run_id)
+        h5 = journal.with_suffix(".h5")
+        check = check_run(h5, journal) if h5.is_file() else check_journal(journal)
+        state = "seal broken" if check.broken else "ok"
+        results.append(VerifyResult(run_id, h5 if h5.is_file() else journal, state,
+                                    f"not in the catalog; {check.describe()}"))
+    for h5 in sorted(catalog.folder.rglob("*.h5")):
+        if h5.stem in known or h5.name.startswith(".") or _hdf5_problem(h5):
+            continue  # an HDF5 file that is no run file, and has no journal, is no evidence
+        check = check_run(h5)
+        state = "seal broken" if check.broken else "ok"
+        results.append(VerifyResult(h5.stem, h5, state, f"not in the catalog; {check.describe()}"))
+    return results
+
+
+def _with_seal(result: VerifyResult) -> VerifyResult:
+    if result.state not in ("ok", "altered"):
+        return result
+    check = check_run(result.path)
+    state = "seal broken" if check.broken and result.state == "ok" else result.state
+    return VerifyResult(result.run_id, result.path, state, f"{result.detail}; {check.describe()}")
+
+
+def _verify_hashes(catalog: Catalog) -> list[VerifyResult]:
     results: list[VerifyResult] = []
     for record in catalog.find():
         path = catalog.resolve(record)
@@ -618,6 +669,10 @@ def verify(catalog: Catalog) -> list[VerifyResult]:
             results.append(VerifyResult(record.run_id, path, "unreadable", f"cannot read the file: {exc}"))
             continue
         problem = _hdf5_problem(path)
+        if record.status in ("running", "interrupted") and not problem:
+            results.append(VerifyResult(record.run_id, path, "ok", f"unfinished ({record.status}): the file grows "
+                                        "with the run and is rebuilt from its journal"))
+            continue
         if digest != record.file_sha256:
             detail = f"SHA-256 {digest} differs from the catalogued {record.file_sha256}"
             results.append(VerifyResult(record.run_id, path, "altered", detail + (f"; {problem}" if problem else "")))
@@ -646,6 +701,8 @@ def rebuild(
     (even a damaged one) is not read. Retest flags and campaigns come from the files; a run
     without a retest flag is a retest when an earlier run of its serial is on disk. Files that
     are not readable run files are skipped and reported to `on_skip(path, reason)`.
+    A file whose seal or journal disagrees (`sweeper.store.seal.check_run`) is never
+    catalogued: it is reported to `on_skip` and left untouched, for `verify` to report.
     Run it while no other process has the catalog open. Returns the new catalog, open.
     """
     catalog_path = Path(catalog_path)
@@ -655,6 +712,11 @@ def rebuild(
     found: list[tuple[RunRecord, bool]] = []
     for file in sorted(runs_dir.rglob("*.h5")):
         if file.name.startswith(".") or not file.is_file():
+            continue
+        check = check_run(file)
+        if check.broken:
+            if on_skip is not None:
+                on_skip(file, f"refused, left as it is: {check.describe()}")
             continue
         try:
             found.append(_read_runfile(file))

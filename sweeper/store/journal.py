@@ -15,9 +15,17 @@ The checksum is CRC-32 (zlib) of the payload's UTF-8 bytes exactly as they appea
 Payloads (``seq`` counts records from 0 and must match the line number - 1):
 
 - header, first line only: ``{"type":"header","seq":0,"format":"sweeper-journal",
-  "format_version":1,"created_utc":...,"header":{...caller's header...}}``
+  "format_version":2,"created_utc":...,"header":{...caller's header...}}``
 - point: ``{"type":"point","seq":n,"point":{<every Point field>}}``
 - event: ``{"type":"event","seq":n,"kind":...,"time_utc":...,"data":{...}}``
+
+Hash chain (format_version 2): every payload also carries ``"chain"``, the running SHA-256
+(lower-case hex) of the complete lines before it: ``chain_0`` = 64 zeros (the header's) and
+``chain_{n+1} = SHA-256(bytes.fromhex(chain_n) + line_n)``, line_n being record n's full line
+bytes, newline included. The journal's final value (`JournalContents.chain_sha256`) is the chain
+after its last complete record; the run file's seal carries it. A record whose ``chain`` is not
+the running value is corruption, like a bad checksum. Version-1 journals (no chain) still read,
+as unsealed (`JournalContents.sealed` False).
 
 Floats: finite values are JSON numbers written with Python's shortest round-trip repr, so
 float64 values come back bit for bit. JSON has no NaN or infinity; a non-finite float is written
@@ -31,6 +39,7 @@ from __future__ import annotations
 import dataclasses
 import datetime as _dt
 import enum
+import hashlib
 import json
 import math
 import os
@@ -50,7 +59,9 @@ except ImportError:  # pragma: no cover - non-POSIX hosts: no advisory lock
     fcntl = None  # type: ignore[assignment]
 
 JOURNAL_FORMAT = "sweeper-journal"
-JOURNAL_FORMAT_VERSION = 1
+JOURNAL_FORMAT_VERSION = 2
+READABLE_JOURNAL_VERSIONS = (1, 2)
+CHAIN_START = "0" * 64
 
 _PREFIX = b'{"crc32":"'
 _MIDDLE = b'","record":'
@@ -81,11 +92,20 @@ class JournalContents:
     torn_bytes: int = 0  # length of that ignored tail, bytes
     created_utc: str = ""  # when the journal was created (ISO 8601 UTC)
     records: int = 0  # complete records read, header included
+    sealed: bool = False  # the journal carries a hash chain (format_version 2)
+    chain_sha256: str = CHAIN_START  # running SHA-256 after the last complete record
+    chain_values: list[str] = dataclasses.field(default_factory=list)  # after each record, in order
+    good_bytes: int = 0  # length of the complete, valid part
 
 
 def utc_now_iso() -> str:
-    """Current time as ISO 8601 UTC with microseconds, e.g. '2024-05-01T12:00:00.000000Z'."""
-    return _dt.datetime.now(_dt.timezone.utc).isoformat(timespec="microseconds").replace("+00:00", "Z")
+    """Current time as ISO 8601 UTC with milliseconds, e.g. '2024-05-01T12:00:00.000Z'."""
+    return _dt.datetime.now(_dt.timezone.utc).isoformat(timespec="milliseconds").replace("+00:00", "Z")
+
+
+def next_chain(chain: str, line: bytes) -> str:
+    """The running hash after `line` (a full journal line, newline included), lower-case hex."""
+    return hashlib.sha256(bytes.fromhex(chain) + line).hexdigest()
 
 
 def _float_token(value: float) -> Any:
@@ -199,8 +219,12 @@ def _decode_line(path: Path, number: int, line: bytes) -> dict[str, Any]:
     return payload
 
 
-def _parse(path: Path, data: bytes) -> tuple[JournalContents, int]:
-    """Parse journal bytes; returns the contents and the length of the complete part."""
+def _parse(path: Path, data: bytes, stop_at_damage: bool = False) -> tuple[JournalContents, int]:
+    """Parse journal bytes; returns the contents and the length of the complete part.
+
+    With stop_at_damage, the first damaged record ends the parse instead of raising (when the
+    header itself is sound): the contents are those of the good records before it, and the
+    returned length is where the damage starts (salvage)."""
     end = data.rfind(b"\n") + 1
     tail = len(data) - end
     lines = data[:end].split(b"\n")[:-1] if end else []
@@ -210,37 +234,66 @@ def _parse(path: Path, data: bytes) -> tuple[JournalContents, int]:
     created = ""
     points: list[Point] = []
     events: list[dict[str, Any]] = []
+    chain = CHAIN_START
+    chains: list[str] = []
+    sealed = False
+    good = 0
     for number, line in enumerate(lines, start=1):
-        payload = _decode_line(path, number, line)
-        kind = payload.get("type")
+        try:
+            payload = _decode_line(path, number, line)
+            kind = payload.get("type")
+            if number == 1:
+                if kind != "header" or payload.get("format") != JOURNAL_FORMAT:
+                    raise JournalError(path, f"first record is not a {JOURNAL_FORMAT} header", number)
+                if payload.get("format_version") not in READABLE_JOURNAL_VERSIONS:
+                    raise JournalError(
+                        path, f"unsupported journal format_version {payload.get('format_version')!r}", number
+                    )
+                sealed = payload.get("format_version") >= 2
+            if sealed and payload.get("chain") != chain:
+                raise JournalError(path, f"hash chain broken (record carries {payload.get('chain')!r}, "
+                                         f"the records before it hash to {chain})", number)
+            _take(path, number, payload, kind, points, events)
+        except JournalError:
+            if not stop_at_damage or number == 1:
+                raise
+            contents = JournalContents(header, points, events, False, 0, created, number - 1, sealed, chain,
+                                       chains, good)
+            return contents, good
         if number == 1:
-            if kind != "header" or payload.get("format") != JOURNAL_FORMAT:
-                raise JournalError(path, f"first record is not a {JOURNAL_FORMAT} header", number)
-            if payload.get("format_version") != JOURNAL_FORMAT_VERSION:
-                raise JournalError(
-                    path, f"unsupported journal format_version {payload.get('format_version')!r}", number
-                )
             header = payload.get("header")
             created = payload.get("created_utc", "")
-            if not isinstance(header, dict):
-                raise JournalError(path, "header record holds no header object", number)
-        elif kind == "point":
-            values = payload.get("point")
-            if not isinstance(values, dict):
-                raise JournalError(path, "point record holds no point object", number)
-            try:
-                points.append(point_from_values(values))
-            except PointValueError as exc:
-                raise JournalError(path, f"bad point: {exc}", number) from None
-        elif kind == "event":
-            data_ = payload.get("data")
-            if not isinstance(payload.get("kind"), str) or not isinstance(data_, dict):
-                raise JournalError(path, "event record without kind or data", number)
-            events.append({"kind": payload["kind"], "time_utc": payload.get("time_utc", ""), **data_})
-        else:
-            raise JournalError(path, f"unexpected record type {kind!r}", number)
-    contents = JournalContents(header, points, events, tail > 0, tail, created, len(lines))
+        if sealed:
+            chain = next_chain(chain, line + b"\n")
+            chains.append(chain)
+        good += len(line) + 1
+    contents = JournalContents(header, points, events, tail > 0, tail, created, len(lines), sealed, chain, chains,
+                               good)
     return contents, end
+
+
+def _take(path: Path, number: int, payload: dict[str, Any], kind: Any, points: list[Point],
+          events: list[dict[str, Any]]) -> None:
+    """Check one decoded record and add its point or event."""
+    if number == 1:
+        if not isinstance(payload.get("header"), dict):
+            raise JournalError(path, "header record holds no header object", number)
+        return
+    if kind == "point":
+        values = payload.get("point")
+        if not isinstance(values, dict):
+            raise JournalError(path, "point record holds no point object", number)
+        try:
+            points.append(point_from_values(values))
+        except PointValueError as exc:
+            raise JournalError(path, f"bad point: {exc}", number) from None
+    elif kind == "event":
+        data_ = payload.get("data")
+        if not isinstance(payload.get("kind"), str) or not isinstance(data_, dict):
+            raise JournalError(path, "event record without kind or data", number)
+        events.append({"kind": payload["kind"], "time_utc": payload.get("time_utc", ""), **data_})
+    else:
+        raise JournalError(path, f"unexpected record type {kind!r}", number)
 
 
 def read_journal(path: str | os.PathLike[str]) -> JournalContents:
@@ -251,6 +304,54 @@ def read_journal(path: str | os.PathLike[str]) -> JournalContents:
     except OSError as exc:
         raise JournalError(path, f"cannot read journal: {exc.strerror or exc}") from None
     return _parse(path, data)[0]
+
+
+@dataclasses.dataclass
+class Damage:
+    """The damaged part of a journal found by `find_damage`: from the first bad record on."""
+
+    line: int  # 1-based line number of the first bad record
+    offset: int  # byte offset where it starts
+    message: str  # why it is bad
+    data: bytes  # every byte from `offset` to the end of the file
+
+
+def find_damage(path: str | os.PathLike[str]) -> tuple[JournalContents, Damage | None]:
+    """Read a journal as far as its records are good: the contents of the good records and the
+    damage after them (None when the whole journal reads). A bad header still raises."""
+    path = Path(path)
+    try:
+        data = path.read_bytes()
+    except OSError as exc:
+        raise JournalError(path, f"cannot read journal: {exc.strerror or exc}") from None
+    try:
+        return _parse(path, data)[0], None
+    except JournalError as exc:
+        if exc.line is None or exc.line == 1:
+            raise
+        contents, good = _parse(path, data, stop_at_damage=True)
+        return contents, Damage(exc.line, good, str(exc), data[good:])
+
+
+def cut_damage(path: str | os.PathLike[str], damage: Damage, keep: str | os.PathLike[str]) -> None:
+    """Move a journal's damaged bytes aside: write them to `keep` (fsync'ed; must not exist),
+    then cut the journal back to its last good record."""
+    keep = Path(keep)
+    fd = os.open(keep, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o444)
+    try:
+        view = memoryview(damage.data)
+        while view:
+            view = view[os.write(fd, view):]
+        os.fsync(fd)
+    finally:
+        os.close(fd)
+    _fsync_dir(keep)
+    fd = os.open(path, os.O_RDWR)
+    try:
+        os.ftruncate(fd, damage.offset)
+        os.fsync(fd)
+    finally:
+        os.close(fd)
 
 
 def _fsync_dir(path: Path) -> None:
@@ -277,6 +378,23 @@ def _lock(path: Path, fd: int) -> None:
         raise JournalError(path, "journal is open for writing by another process") from None
 
 
+def journal_in_use(path: str | os.PathLike[str]) -> bool:
+    """True while a process holds the journal's advisory write lock (its run is going on)."""
+    if fcntl is None:
+        return False
+    try:
+        fd = os.open(path, os.O_RDONLY)
+    except OSError:
+        return False
+    try:
+        fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
+    except OSError:
+        return True
+    finally:
+        os.close(fd)  # closing drops a lock taken here
+    return False
+
+
 class Journal:
     """An open journal for appending. Build with `Journal.create` or `Journal.open_append`."""
 
@@ -285,12 +403,24 @@ class Journal:
         self._fd: int | None = fd
         self._size = size
         self._seq = contents.records
+        self._sealed = contents.sealed
+        self._chain = contents.chain_sha256
         self.contents = contents
         """What the journal held when opened (for `create`: the header only)."""
 
     @property
     def path(self) -> Path:
         return self._path
+
+    @property
+    def chain(self) -> str:
+        """The running SHA-256 after the last record written (CHAIN_START for an unsealed journal)."""
+        return self._chain
+
+    @property
+    def sealed(self) -> bool:
+        """The journal carries a hash chain (format_version 2)."""
+        return self._sealed
 
     @property
     def closed(self) -> bool:
@@ -304,6 +434,7 @@ class Journal:
             {
                 "type": "header",
                 "seq": 0,
+                "chain": CHAIN_START,
                 "format": JOURNAL_FORMAT,
                 "format_version": JOURNAL_FORMAT_VERSION,
                 "created_utc": (created := utc_now_iso()),
@@ -315,7 +446,7 @@ class Journal:
         except FileExistsError:
             raise JournalError(path, "journal already exists") from None
         _lock(path, fd)
-        journal = cls(path, fd, 0, JournalContents(loads(dumps(header)), [], [], False, 0, created, 0))
+        journal = cls(path, fd, 0, JournalContents(loads(dumps(header)), [], [], False, 0, created, 0, True))
         try:
             journal._write(line)
         except BaseException:
@@ -367,6 +498,11 @@ class Journal:
             raise
         self._size += len(line)
         self._seq += 1
+        if self._sealed:
+            self._chain = next_chain(self._chain, line)
+
+    def _payload(self, payload: dict[str, Any]) -> dict[str, Any]:
+        return {**payload, "chain": self._chain} if self._sealed else payload
 
     def append_point(self, point: Point) -> None:
         """Append one point; on return it is on disk (written and fsync'ed)."""
@@ -374,7 +510,7 @@ class Journal:
             values = point_values(point)
         except PointValueError as exc:
             raise JournalError(self._path, f"bad point: {exc}") from None
-        self._write(_encode_line({"type": "point", "seq": self._seq, "point": values}))
+        self._write(_encode_line(self._payload({"type": "point", "seq": self._seq, "point": values})))
 
     def append_event(self, kind: str, **data: Any) -> dict[str, Any]:
         """Append an event (e.g. "started", "fault", "interrupted", "finished") with JSON-able data.
@@ -387,7 +523,7 @@ class Journal:
         time_utc = data.pop("time_utc", None) or utc_now_iso()
         if not isinstance(time_utc, str):
             raise TypeError("time_utc must be an ISO 8601 string")
-        payload = {"type": "event", "seq": self._seq, "kind": kind, "time_utc": time_utc, "data": data}
+        payload = self._payload({"type": "event", "seq": self._seq, "kind": kind, "time_utc": time_utc, "data": data})
         line = _encode_line(payload)
         self._write(line)
         return {"kind": kind, "time_utc": time_utc, **loads(dumps(data))}

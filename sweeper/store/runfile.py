@@ -6,10 +6,10 @@ survive a crash: the journal (`sweeper.store.journal`) is the record of truth, a
 unreadable or stale. Build the journal header with `run_header` and give the same header to
 `RunWriter.from_header`, so a rebuilt file holds the same data as the one written directly.
 
-Run-file layout, format "sweeper-run", format_version 1
+Run-file layout, format "sweeper-run", format_version 2
 =======================================================
 
-Times are ISO 8601 UTC strings. Strings are variable-length UTF-8. Attributes marked (JSON)
+Times are ISO 8601 UTC strings (written as YYYY-MM-DDThh:mm:ss.sssZ). Strings are variable-length UTF-8. Attributes marked (JSON)
 hold JSON text; their names are listed in the `json_attributes` attribute of the same object.
 
 ``/`` (root attributes)
@@ -60,6 +60,30 @@ hold JSON text; their names are listed in the `json_attributes` attribute of the
 ``/summary`` (group, written by `finish`)
     the run summary given to `finish`: scalar values as attributes, lists/dicts/None as (JSON)
     attributes listed in ``json_attributes``.
+
+``/points`` datasets (format_version 2) also carry ``description`` (what the column holds,
+`sweeper.store.runfile.describe`, generic for new columns), a dimension scale: ``frequency_hz``
+is an HDF5 dimension scale and every other point (and prediction) dataset has it attached to
+dimension 0 (label "frequency_hz"); ``u_*`` datasets carry ``uncertainty`` = "standard" and
+``coverage_factor`` = 1.0, ``U_*`` datasets ``uncertainty`` = "expanded" and
+``coverage_factor_dataset`` = "k"; ``verdict`` and ``flags`` carry one int attribute
+``code_<NAME>`` per member.
+
+``/codes/verdict``, ``/codes/flags`` (format_version 2)
+    ``name`` (strings) and ``value`` (int64), row by row: the names beside their codes.
+
+``/metadata`` (format_version 2): the metadata other languages need, as plain values
+    ``dut`` group (attributes board, serial, description); ``tags`` string dataset;
+    ``software`` group (one string attribute per package); ``instruments/<i>`` groups (one string
+    attribute per identity field: role, resource, idn, driver, driver_sha256); after a resumed
+    run, ``interruptions/<i>`` groups (interrupted_utc, resumed_utc, gap_s, reason, ...).
+
+Seal (root attributes, see DEVELOPERS.md "The seal")
+    ``seal_journal_sha256``  the journal's hash chain after its last record when sealed
+    ``seal_content_sha256``  SHA-256 of everything else in the file (`content_digest`)
+    absent while the file is being written (or for a killed run until it is rebuilt).
+
+Version-1 files (no /codes, /metadata, descriptions, scales or seal) still read.
 """
 
 from __future__ import annotations
@@ -83,8 +107,46 @@ from sweeper.store.fields import FIELD_DEFAULTS, FIELD_KINDS, point_values
 from sweeper.store.journal import _fsync_dir, dumps, loads, read_journal, utc_now_iso
 
 FORMAT_NAME = "sweeper-run"
-FORMAT_VERSION = 1
+FORMAT_VERSION = 2
+READABLE_FORMAT_VERSIONS = (1, 2)
+_DESCRIPTIONS = {
+    "index": "position of the point in the planned sweep, from 0",
+    "frequency_hz": "stimulus frequency of the point (the dimension scale of every /points dataset)",
+    "gain_db": "measured gain 20 log10(A_out / A_in)",
+    "phase_deg": "measured phase of the output relative to the input, wrapped to (-180, 180]",
+    "amplitude_in_v": "fitted peak amplitude, channel 1 (DUT input)",
+    "amplitude_out_v": "fitted peak amplitude, channel 2 (DUT output)",
+    "range_in_v": "vertical full-scale span the measuring instrument used, channel 1 (DUT input)",
+    "range_out_v": "vertical full-scale span the measuring instrument used, channel 2 (DUT output)",
+    "samples": "samples per capture",
+    "captures": "acquisitions averaged into the point",
+    "flags": "bit mask of point flags; names and bits in /codes/flags",
+    "elapsed_s": "time since the run started, on the bench clock",
+    "time_utc": "when the point was finished, UTC ISO 8601 with milliseconds",
+    "verdict": "point verdict code; names and codes in /codes/verdict",
+    "margin_gain_db": "distance to the nearest gain limit: positive inside the limits, negative outside",
+    "margin_phase_deg": "distance to the nearest phase limit: positive inside the limits, negative outside",
+}
+
+
+def describe(name: str) -> str:
+    """A description of a point or prediction column from its name (generic for new columns)."""
+    if name in _DESCRIPTIONS:
+        return _DESCRIPTIONS[name]
+    if name.startswith("u_"):
+        return f"standard uncertainty (k = 1) of {name[2:]}"
+    if name.startswith("U_"):
+        return f"expanded uncertainty of {name[2:]}, U = k u (coverage factor in the dataset k)"
+    if name.endswith("_lo_db") or name.endswith("_lo_deg"):
+        return f"lower limit ({name})"
+    if name.endswith("_hi_db") or name.endswith("_hi_deg"):
+        return f"upper limit ({name})"
+    if name.startswith("model_"):
+        return f"the model's prediction of {name[6:]}"
+    unit = units_of(name)
+    return f"{name.replace('_', ' ')}" + (f" ({unit})" if unit else "")
 FINISH_EVENT = "finished"
+SALVAGE_EVENT = "salvaged"  # journal event of `sweeper resume --salvage`: damaged records moved aside
 RESUMED_EVENT = "resumed"  # journal event of `sweeper resume`: voids the finish event before it
 """Journal event kind that marks a finished run; its data carry `summary` (dict)."""
 
@@ -98,6 +160,11 @@ _RESERVED_KEYS = frozenset(
 _CHUNK_POINTS = 64
 _STR_DTYPE = h5py.string_dtype("utf-8")
 _NP_DTYPES = {int: np.dtype(np.int64), float: np.dtype(np.float64), str: _STR_DTYPE}
+
+
+SEAL_ATTRIBUTES = ("seal_journal_sha256", "seal_content_sha256")
+"""Root attributes of the seal; `content_digest` leaves them (and nothing else) out."""
+_UNHASHED_ATTRIBUTES = frozenset({*SEAL_ATTRIBUTES, "DIMENSION_LIST", "REFERENCE_LIST"})
 
 
 class RunFileError(ValueError):
@@ -268,6 +335,10 @@ class RunWriter:
             if bool(self._file.attrs["finished"]):
                 raise RunFileError(f"{self._path}: run already finished")
             self._count = int(self._file["points"].attrs["count"])
+            for name in SEAL_ATTRIBUTES:  # written to again: sealed anew when closed by finish_run
+                if name in self._file.attrs:
+                    del self._file.attrs[name]
+            self._file.flush()
         except BaseException:
             self._file.close()
             raise
@@ -293,9 +364,23 @@ class RunWriter:
             ds.attrs["units"] = units_of(name)
         points["flags"].attrs["flag_bits"] = json.dumps({m.name: int(m.value) for m in Flag})
         points["verdict"].attrs["verdict_names"] = json.dumps({m.name: int(m.value) for m in Verdict})
+        _describe_columns(points, POINT_FIELDS)
+        codes = f.create_group("codes")
+        for group_name, enum_type, what in (("verdict", Verdict, "point and run verdicts"),
+                                            ("flags", Flag, "point flag bits")):
+            members = [m for m in enum_type if m.name]
+            g = codes.create_group(group_name)
+            g.create_dataset("name", data=np.array([m.name for m in members], dtype=object), dtype=_STR_DTYPE)
+            g.create_dataset("value", data=np.array([int(m.value) for m in members], dtype=np.int64))
+            g["name"].attrs["description"] = f"names of the {what}, row by row beside /codes/{group_name}/value"
+            g["value"].attrs["description"] = f"codes of the {what} as stored in /points/{group_name}"
+            for m in members:
+                points[group_name].attrs[f"code_{m.name}"] = int(m.value)
+        _plain_metadata(f.create_group("metadata"), md)
         pred = f.create_group("prediction")
         for name, arr in {"frequency_hz": freq, **arrays}.items():
             pred.create_dataset(name, data=arr, dtype=np.float64).attrs["units"] = units_of(name)
+        _describe_columns(pred, ["frequency_hz", *arrays])
 
     @property
     def path(self) -> Path:
@@ -360,10 +445,20 @@ class RunWriter:
         except (KeyError, ValueError):
             raise RunFileError(f"summary.verdict: {given!r} is not a Verdict") from None
         _set_attrs(f.require_group("summary").attrs, plain)
+        _plain_interruptions(f, plain)
         _set_attrs(f.attrs, {"end_utc": end_utc or utc_now_iso(), "finished": True, "verdict": int(verdict),
                              "verdict_name": verdict.name})
         f.flush()
         self._finished = True
+
+    def seal(self, journal_chain: str) -> None:
+        """Write the seal: the journal's running hash after its last record (hex) and the
+        digest of this file's content and metadata (`content_digest`), then flush."""
+        if not self._file:
+            raise RunFileError(f"{self._path}: run file is closed")
+        self._file.attrs["seal_journal_sha256"] = str(journal_chain)
+        self._file.attrs["seal_content_sha256"] = content_digest(self._file)
+        self._file.flush()
 
     def close(self) -> None:
         """Close the file (idempotent). Without `finish` the run stays marked unfinished."""
@@ -377,13 +472,118 @@ class RunWriter:
         self.close()
 
 
+def _canonical(value: Any) -> Any:
+    """A JSON-able, exact stand-in of an HDF5 value (attribute or dataset content) for hashing."""
+    if isinstance(value, bytes):
+        return value.decode("utf-8", "surrogateescape")
+    if isinstance(value, np.ndarray):
+        if value.dtype.kind in "OSU":
+            return ["strings", list(value.shape), [_canonical(v) for v in value.reshape(-1).tolist()]]
+        return [value.dtype.str, list(value.shape), np.ascontiguousarray(value).tobytes().hex()]
+    if isinstance(value, np.generic):
+        return _canonical(np.asarray(value))
+    if isinstance(value, float):
+        return ["float", struct_bits(value)]
+    if isinstance(value, (str, int, bool)) or value is None:
+        return value
+    return repr(value)
+
+
+def struct_bits(value: float) -> str:
+    """The 16 hex digits of a float64's bits (NaN payloads kept)."""
+    return np.float64(value).tobytes().hex()
+
+
+def _attrs_canonical(attrs: h5py.AttributeManager, skip: frozenset[str]) -> list[Any]:
+    return [[key, _canonical(attrs[key])] for key in sorted(attrs) if key not in skip]
+
+
+def content_digest(f: h5py.File) -> str:
+    """SHA-256 (hex) of a run file's content and metadata: every attribute (the seal's own and
+    HDF5's dimension-scale bookkeeping left out) and every dataset's values, in name order."""
+    entries: list[Any] = [["/", _attrs_canonical(f.attrs, _UNHASHED_ATTRIBUTES)]]
+
+    def visit(name: str, obj: Any) -> None:
+        attrs = _attrs_canonical(obj.attrs, _UNHASHED_ATTRIBUTES)
+        if isinstance(obj, h5py.Dataset):
+            data = obj.asstr()[()] if h5py.check_string_dtype(obj.dtype) else obj[()]
+            entries.append([name, attrs, _canonical(np.asarray(data, dtype=object if isinstance(data, str) else None))])
+        else:
+            entries.append([name, attrs])
+
+    f.visititems(visit)
+    text = json.dumps(entries, ensure_ascii=False, separators=(",", ":"))
+    return hashlib.sha256(text.encode("utf-8", "surrogateescape")).hexdigest()
+
+
+def read_seal(path: str | os.PathLike[str]) -> tuple[str, str, str]:
+    """A run file's seal: (journal chain, stored content digest, recomputed content digest);
+    the first two are "" when the file carries no seal (written before seals, or never closed)."""
+    with h5py.File(path, "r") as f:
+        chain = f.attrs.get("seal_journal_sha256", "")
+        stored = f.attrs.get("seal_content_sha256", "")
+        actual = content_digest(f)
+    text = [v.decode() if isinstance(v, bytes) else str(v) for v in (chain, stored)]
+    return text[0], text[1], actual
+
+
+def _describe_columns(group: h5py.Group, names: Iterable[str]) -> None:
+    """Descriptions, uncertainty kinds and the frequency_hz dimension scale on a group's columns."""
+    scale = group["frequency_hz"]
+    scale.make_scale("frequency_hz")
+    for name in names:
+        ds = group[name]
+        ds.attrs["description"] = describe(name)
+        if name.startswith("u_"):
+            ds.attrs["uncertainty"] = "standard"
+            ds.attrs["coverage_factor"] = 1.0
+        elif name.startswith("U_"):
+            ds.attrs["uncertainty"] = "expanded"
+            ds.attrs["coverage_factor_dataset"] = "k"
+        if name != "frequency_hz":
+            ds.dims[0].attach_scale(scale)
+            ds.dims[0].label = "frequency_hz"
+
+
+def _plain_metadata(group: h5py.Group, md: Mapping[str, Any]) -> None:
+    """What other languages need of the metadata, as plain attributes and string datasets."""
+    group.attrs["description"] = "run metadata as plain values (the root attributes hold the same, some as JSON)"
+    dut = md.get("dut") or {}
+    g = group.create_group("dut")
+    for key in ("board", "serial", "description"):
+        g.attrs[key] = str(dut.get(key) or "")
+    tags = [str(t) for t in (md.get("tags") or [])]
+    ds = group.create_dataset("tags", data=np.array(tags, dtype=object), dtype=_STR_DTYPE)
+    ds.attrs["description"] = "the run's tags"
+    software = group.create_group("software")
+    for key, value in (md.get("software") or {}).items():
+        software.attrs[str(key)] = str(value)
+    instruments = group.create_group("instruments")
+    for i, ident in enumerate(md.get("instruments") or []):
+        g = instruments.create_group(str(i))
+        for key, value in (ident or {}).items():
+            g.attrs[str(key)] = "" if value is None else str(value)
+
+
+def _plain_interruptions(f: h5py.File, summary: Mapping[str, Any]) -> None:
+    found = summary.get("interruptions") or []
+    if "metadata" not in f or not isinstance(found, list):
+        return
+    group = f["metadata"].require_group("interruptions")
+    group.attrs["description"] = "one group per interruption, in order: last write, resume, gap (s), reason"
+    for i, item in enumerate(found):
+        g = group.require_group(str(i))
+        for key, value in (item or {}).items():
+            g.attrs[str(key)] = value if isinstance(value, (int, float, bool)) else str(value)
+
+
 def _check_format(f: h5py.File, path: Path) -> None:
     fmt = f.attrs.get("format")
     if isinstance(fmt, bytes):
         fmt = fmt.decode()
     if fmt != FORMAT_NAME:
         raise RunFileError(f"{path}: not a {FORMAT_NAME} file (format={fmt!r})")
-    if int(f.attrs.get("format_version", -1)) != FORMAT_VERSION:
+    if int(f.attrs.get("format_version", -1)) not in READABLE_FORMAT_VERSIONS:
         raise RunFileError(f"{path}: unsupported format_version {f.attrs.get('format_version')!r}")
 
 
@@ -479,6 +679,9 @@ def _finish_event(events: list[dict[str, Any]]) -> dict[str, Any] | None:
     return None
 
 
+finish_event_in_force = _finish_event
+
+
 def rebuild_runfile(journal_path: str | os.PathLike[str], runfile_path: str | os.PathLike[str]) -> None:
     """Write a complete run file from the journal alone, atomically (temp file + os.replace).
 
@@ -499,6 +702,8 @@ def rebuild_runfile(journal_path: str | os.PathLike[str], runfile_path: str | os
             done = _finish_event(contents.events)
             if done is not None:
                 writer.finish(done.get("summary") or {}, end_utc=done["time_utc"])
+            if contents.sealed:
+                writer.seal(contents.chain_sha256)
         fd = os.open(tmp, os.O_RDONLY)
         try:
             os.fsync(fd)

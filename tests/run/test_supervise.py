@@ -216,10 +216,11 @@ def test_nearly_full_disk_stops_the_run_before_a_write_can_fail(tmp_path: Path) 
 
 @pytest.mark.skipif(not hasattr(resource, "RLIMIT_FSIZE"), reason="needs POSIX file size limits")
 def test_real_journal_write_failure_in_a_subprocess_keeps_every_point(tmp_path: Path) -> None:
-    """A real failing write: the run's process may not grow any file past 170 kB (RLIMIT_FSIZE;
+    """A real failing write: the run's process may not grow any file past 205 kB (RLIMIT_FSIZE;
     the kernel answers EFBIG, as it answers ENOSPC on a full disk). Frequent simulated timeouts,
-    each retried and recorded as a journal event, make the journal outgrow the run file (about
-    150 kB with its per-point budget columns until its 64th point), so the journal is the file whose write fails, mid-run."""
+    each retried and recorded as a journal event, make the journal outgrow the run file
+    (format_version 2 with the per-point budget columns: about 185 kB at 60 points), so the journal is the file whose
+    write fails, mid-run."""
     plan = tmp_path / "plan.yaml"
     plan.write_text(plan_text(points=60, stop="50 kHz", faults="{timeout: {retries: 1000, backoff: 0 s}}",
                               injections="[{kind: timeout, probability: 60 %, seed: 1, command: 'BLOC?'}]"))
@@ -227,7 +228,7 @@ def test_real_journal_write_failure_in_a_subprocess_keeps_every_point(tmp_path: 
 
     def limit() -> None:
         signal.signal(signal.SIGXFSZ, signal.SIG_IGN)  # EFBIG instead of the default kill
-        resource.setrlimit(resource.RLIMIT_FSIZE, (170_000, 170_000))
+        resource.setrlimit(resource.RLIMIT_FSIZE, (205_000, 205_000))
 
     done = subprocess.run([sys.executable, "-m", "sweeper", "run", str(plan), "--out", str(runs)],
                           capture_output=True, text=True, preexec_fn=limit, env={**os.environ, "COLUMNS": "200"},
@@ -240,3 +241,29 @@ def test_real_journal_write_failure_in_a_subprocess_keeps_every_point(tmp_path: 
     printed = [line for line in done.stdout.splitlines() if " Hz " in line]
     kept = journal_points_match_runfile(journal, journal.with_suffix(".h5"))  # rebuilt here, no limit
     assert 0 < len(printed) <= kept < 60  # every point it reported is kept
+
+
+@pytest.mark.skipif(not hasattr(resource, "RLIMIT_FSIZE"), reason="needs POSIX file size limits")
+def test_full_disk_with_the_guard_at_zero_and_waveforms_kept_ends_cleanly(tmp_path: Path) -> None:
+    """The free-space guard off (min_free_mb: 0) and every capture kept: the run file outgrows
+    the 400 kB the process may write (RLIMIT_FSIZE; EFBIG, as ENOSPC on a full disk) while the
+    journal stays small, so an HDF5 write fails half-way. Before the fix the process died at
+    exit with SIGSEGV (-11) in HDF5's clean-up, 3 runs of 3."""
+    plan = tmp_path / "plan.yaml"
+    plan.write_text(plan_text(points=40, stop="50 kHz", faults="{write_failure: {min_free_mb: 0}}"))
+    runs = tmp_path / "runs"
+
+    def limit() -> None:
+        signal.signal(signal.SIGXFSZ, signal.SIG_IGN)  # EFBIG instead of the default kill
+        resource.setrlimit(resource.RLIMIT_FSIZE, (400_000, 400_000))
+
+    done = subprocess.run([sys.executable, "-m", "sweeper", "run", str(plan), "--out", str(runs), "--waveforms"],
+                          capture_output=True, text=True, preexec_fn=limit, env={**os.environ, "COLUMNS": "200"},
+                          timeout=300)
+    said = done.stdout + done.stderr
+    assert done.returncode == EXIT_RUN_ERROR, (done.returncode, said[-3000:])  # not -11
+    assert "could not be written" in said and "rebuilt from the journal" in said
+    (journal,) = runs.glob("*.journal")
+    printed = [int(line.split()[0]) - 1 for line in done.stdout.splitlines() if " Hz " in line]
+    kept = journal_points_match_runfile(journal, journal.with_suffix(".h5"))  # rebuilt here, no limit
+    assert printed and max(printed) < kept < 40  # every point it reported is in the journal

@@ -64,7 +64,7 @@ def test_hdf5_layout_units_and_types(tmp_path, header, points):
     path = tmp_path / "run.h5"
     _write_run(path, header, points[:3])
     with h5py.File(path, "r") as f:
-        assert f.attrs["format"] == "sweeper-run" and f.attrs["format_version"] == 1
+        assert f.attrs["format"] == "sweeper-run" and f.attrs["format_version"] == 2
         assert f["points"].attrs["count"] == 3
         for name in POINT_FIELDS:
             ds = f["points"][name]
@@ -157,6 +157,7 @@ def _journal_and_run(tmp_path: Path, header: dict, points: list[Point], finish: 
         if finish:
             event = journal.append_event(FINISH_EVENT, summary={"verdict": int(Verdict.FAIL), "failed": 3})
             writer.finish(event["summary"], end_utc=event["time_utc"])
+        writer.seal(journal.chain)  # as finish_run does at the end of every run
     return journal_path, run_path
 
 
