@@ -9,14 +9,15 @@ from pathlib import Path
 import click
 import numpy as np
 from rich import box
-from rich.markup import escape
 from rich.table import Table
+from rich.text import Text
 
 from sweeper.cli import main
 from sweeper.cli.common import (
     RUNS_OPTION,
     console,
     err_console,
+    styled,
     read_or_exit,
     run_paths,
 )
@@ -190,8 +191,8 @@ def diagnose(run: str, runs_dir: str) -> None:
         err_console.print(f"{path}: cannot fit: {exc}", markup=False)
         sys.exit(ExitCode.BAD_INPUT)
     dut = meta.get("dut") or {}
-    who = escape(f"{dut.get('board') or ''} {dut.get('serial') or ''}")
-    console.print(f"[bold]{who}[/]  run {escape(str(meta.get('run_id')))}  model {ex.topology}", highlight=False)
+    who = f"{dut.get('board') or ''} {dut.get('serial') or ''}"
+    console.print(styled((who, "bold"), f"  run {meta.get('run_id')}  model {ex.topology}"))
     styles = {IN_TOLERANCE: "green", OUT_OF_TOLERANCE: "bold red", HELD: "dim"}
     rows = []
     for p in ex.parameters:
@@ -202,7 +203,7 @@ def diagnose(run: str, runs_dir: str) -> None:
         rows.append((p.name + (f" ({p.condition})" if p.condition else ""), format_value(p.value, p.unit, 5),
                      format_range(p.low, p.high, p.unit), format_value(p.nominal, p.unit, 5),
                      format_range(p.tolerance_low, p.tolerance_high, p.unit), dev,
-                     f"[{styles.get(p.verdict, 'yellow')}]{p.verdict}[/]"))
+                     Text(p.verdict, style=styles.get(p.verdict, "yellow"))))
     title = f"fitted parameters ({ex.level * 100:g} % intervals)"
     if console.width >= 110:
         table = Table(title=title, box=box.SIMPLE_HEAD, pad_edge=False)
@@ -217,9 +218,9 @@ def diagnose(run: str, runs_dir: str) -> None:
         console.print(title)
         for p, (name, value, interval, nominal, tol, dev, verdict) in zip(ex.parameters, rows):
             if p.kind == "reference":
-                console.print(f"  {escape(name)}: {verdict} {nominal} ({tol})")
+                console.print(f"  {name}: {verdict} {nominal} ({tol})")
             else:
-                console.print(f"  {escape(name)}: {value} ({interval}); nominal {nominal} ({tol}); {dev}: {verdict}")
+                console.print(f"  {name}: {value} ({interval}); nominal {nominal} ({tol}); {dev}: {verdict}")
     console.print(
         f"fit: {ex.points} points, chi-square {ex.chi2:.4g} for {ex.dof} degrees of freedom (reduced "
         f"{ex.reduced_chi2:.3g}); k = {ex.coverage_factor:.3g}"

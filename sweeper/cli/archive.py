@@ -15,6 +15,7 @@ from sweeper.cli.common import (
     err_console,
     open_catalog,
     read_or_exit,
+    styled,
 )
 from sweeper.measure.point import Verdict
 from sweeper.plan import format_quantity
@@ -96,7 +97,7 @@ def verify(runs_dir: str) -> None:
     bad = [r for r in results if r.state != "ok"]
     for r in results:
         style = "green" if r.state == "ok" else "bold red"
-        console.print(f"[{style}]{r.state:10}[/] {r.run_id}  {r.path}  {r.detail}")
+        console.print(styled((f"{r.state:10}", style), f" {r.run_id}  {r.path}  {r.detail}"))
     console.print(f"{len(results)} file(s) checked, {len(bad)} problem(s)")
     sys.exit(ExitCode.FAIL if bad else ExitCode.PASS)
 

@@ -19,6 +19,7 @@ from rich.progress import (
     TimeRemainingColumn,
 )
 from rich.table import Table
+from rich.text import Text
 
 from sweeper.cli import main
 from sweeper.cli.common import (
@@ -28,6 +29,7 @@ from sweeper.cli.common import (
     console,
     err_console,
     flag_names,
+    styled,
 )
 from sweeper.measure.point import Point, Verdict
 from sweeper.plan import format_quantity
@@ -40,7 +42,7 @@ def check(plan_path: str) -> None:
     """Validate a test plan and show what the board should do and how long the sweep takes."""
 
     plan, report = checked_plan_or_exit(plan_path)
-    console.print(f"[bold]{plan.name}[/]  {plan.dut.board} ({plan.dut.serial})  plan sha256 {plan.sha256[:12]}")
+    console.print(styled((plan.name, "bold"), f"  {plan.dut.board} ({plan.dut.serial})  plan sha256 {plan.sha256[:12]}"))
     console.print(
         f"{report.points} points, {format_quantity(report.start_hz, 'frequency')} to "
         f"{format_quantity(report.stop_hz, 'frequency')}, {plan.bench.kind} bench, {plan.bench.mode} mode; "
@@ -61,8 +63,8 @@ def check(plan_path: str) -> None:
             f"{row['phase_lo_deg']:.2f} .. {row['phase_hi_deg']:.2f}",
         )
     console.print(table)
-    console.print(Panel(SAFETY, title="Safety", border_style="yellow"))
-    console.print("[green]plan is sound[/]")
+    console.print(Panel(SAFETY, title=Text("Safety"), border_style="yellow"))
+    console.print("plan is sound", style="green")
 
 
 @main.command()
@@ -75,8 +77,8 @@ def run(plan_path: str, out_dir: str, waveforms: bool) -> None:
     from sweeper.run.runner import execute_run
 
     plan, report = checked_plan_or_exit(plan_path)
-    console.print(f"[bold]{plan.name}[/]  {plan.dut.board} ({plan.dut.serial})  {report.points} points, "
-                  f"estimated {report.duration_text}")
+    console.print(styled((plan.name, "bold"), f"  {plan.dut.board} ({plan.dut.serial})  {report.points} points, "
+                                              f"estimated {report.duration_text}"))
     stop_requested = {"flag": False}
 
     def on_term(signum, frame):  # noqa: ARG001 - signal handler signature
@@ -84,10 +86,10 @@ def run(plan_path: str, out_dir: str, waveforms: bool) -> None:
 
     signal.signal(signal.SIGTERM, on_term)
     progress = Progress(
-        TextColumn("[bold]{task.description}"),
+        TextColumn("{task.description}", style="bold", markup=False),
         BarColumn(),
         MofNCompleteColumn(),
-        TextColumn("{task.fields[freq]}"),
+        TextColumn("{task.fields[freq]}", markup=False),
         TimeElapsedColumn(),
         TimeRemainingColumn(),
         console=console,
@@ -145,7 +147,7 @@ def render_outcome(outcome) -> None:
         err_console.print(f"run {outcome.status}: {outcome.error}", markup=False)
     v = Verdict(outcome.verdict)
     console.print(Panel(f"{VERDICT_LABELS[v]}  —  {VERDICT_MEANINGS[v]}", style=VERDICT_STYLE[v],
-                        title=f"verdict ({outcome.status})"))
+                        title=Text(f"verdict ({outcome.status})")))
     if outcome.journal_path.exists():
         console.print(f"run file: {outcome.run_path}")
         console.print(f"journal:  {outcome.journal_path}")
