@@ -48,6 +48,8 @@ def check(plan_path: str) -> None:
         f"{format_quantity(report.stop_hz, 'frequency')}, {plan.bench.kind} bench, {plan.bench.mode} mode; "
         f"estimated duration {report.duration_text}"
     )
+    for warning in report.warnings:
+        err_console.print(f"warning: {warning}", style="yellow")
     for key, value in report.figures.items():
         if isinstance(value, float) and math.isfinite(value):
             console.print(f"  {key}: {value:.6g}")
