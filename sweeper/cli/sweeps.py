@@ -150,6 +150,7 @@ def render_outcome(outcome) -> None:
     v = Verdict(outcome.verdict)
     console.print(Panel(f"{VERDICT_LABELS[v]}  —  {VERDICT_MEANINGS[v]}", style=VERDICT_STYLE[v],
                         title=Text(f"verdict ({outcome.status})")))
+    output_doubt(outcome)
     if outcome.journal_path.exists():
         console.print(f"run file: {outcome.run_path}")
         console.print(f"journal:  {outcome.journal_path}")
@@ -157,3 +158,11 @@ def render_outcome(outcome) -> None:
         console.print("nothing was written: the run stopped before its first record")
 
 
+
+
+def output_doubt(outcome) -> None:
+    """Say in red when the source's output could not be confirmed off at the end of the run."""
+    if outcome.output_off is False or outcome.sim_output_on:
+        err_console.print("source: the generator did not confirm 'output off' at the end of the run; its output "
+                          "may still be ON. Switch it off at the instrument before touching the DUT.",
+                          style="bold red")
