@@ -9,8 +9,8 @@ from pathlib import Path
 import click
 import numpy as np
 from rich import box
-from rich.markup import escape
 from rich.table import Table
+from rich.text import Text
 
 from sweeper.cli import main
 from sweeper.cli.common import (
@@ -18,6 +18,7 @@ from sweeper.cli.common import (
     RUNS_OPTION,
     console,
     err_console,
+    styled,
     read_or_exit,
     run_paths,
     sealed_or_exit,
@@ -82,7 +83,7 @@ def compare(runs: tuple[str, ...], runs_dir: str, golden: str | None, at: tuple[
     warning = sealed_or_exit(paths + (run_paths((golden,), runs_dir) if golden else []), accept_broken_seal,
                              "compare")
     if warning:
-        console.print(escape(warning), style="bold red")
+        console.print(warning, style="bold red")
     golden_index = None
     if golden is not None:
         golden_path = run_paths((golden,), runs_dir)[0]
@@ -200,7 +201,7 @@ def diagnose(run: str, runs_dir: str, accept_broken_seal: bool) -> None:
     path = run_paths((run,), runs_dir)[0]
     warning = sealed_or_exit([path], accept_broken_seal, "diagnose")
     if warning:
-        console.print(escape(warning), style="bold red")
+        console.print(warning, style="bold red")
     frame, meta = read_or_exit(path, read_run)
     try:
         ex = extract(frame, meta)
@@ -208,8 +209,8 @@ def diagnose(run: str, runs_dir: str, accept_broken_seal: bool) -> None:
         err_console.print(f"{path}: cannot fit: {exc}", markup=False)
         sys.exit(ExitCode.BAD_INPUT)
     dut = meta.get("dut") or {}
-    who = escape(f"{dut.get('board') or ''} {dut.get('serial') or ''}")
-    console.print(f"[bold]{who}[/]  run {escape(str(meta.get('run_id')))}  model {ex.topology}", highlight=False)
+    who = f"{dut.get('board') or ''} {dut.get('serial') or ''}"
+    console.print(styled((who, "bold"), f"  run {meta.get('run_id')}  model {ex.topology}"))
     styles = {IN_TOLERANCE: "green", OUT_OF_TOLERANCE: "bold red", HELD: "dim"}
     rows = []
     for p in ex.parameters:
@@ -220,7 +221,7 @@ def diagnose(run: str, runs_dir: str, accept_broken_seal: bool) -> None:
         rows.append((p.name + (f" ({p.condition})" if p.condition else ""), format_value(p.value, p.unit, 5),
                      format_range(p.low, p.high, p.unit), format_value(p.nominal, p.unit, 5),
                      format_range(p.tolerance_low, p.tolerance_high, p.unit), dev,
-                     f"[{styles.get(p.verdict, 'yellow')}]{p.verdict}[/]"))
+                     Text(p.verdict, style=styles.get(p.verdict, "yellow"))))
     title = f"fitted parameters ({ex.level * 100:g} % intervals)"
     if console.width >= 110:
         table = Table(title=title, box=box.SIMPLE_HEAD, pad_edge=False)
@@ -235,9 +236,9 @@ def diagnose(run: str, runs_dir: str, accept_broken_seal: bool) -> None:
         console.print(title)
         for p, (name, value, interval, nominal, tol, dev, verdict) in zip(ex.parameters, rows):
             if p.kind == "reference":
-                console.print(f"  {escape(name)}: {verdict} {nominal} ({tol})")
+                console.print(f"  {name}: {verdict} {nominal} ({tol})")
             else:
-                console.print(f"  {escape(name)}: {value} ({interval}); nominal {nominal} ({tol}); {dev}: {verdict}")
+                console.print(f"  {name}: {value} ({interval}); nominal {nominal} ({tol}); {dev}: {verdict}")
     console.print(
         f"fit: {ex.points} points, chi-square {ex.chi2:.4g} for {ex.dof} degrees of freedom (reduced "
         f"{ex.reduced_chi2:.3g}); k = {ex.coverage_factor:.3g}"

@@ -6,7 +6,7 @@ import sys
 from pathlib import Path
 
 import click
-from rich.markup import escape
+from rich.text import Text
 from rich.table import Table
 
 from sweeper.cli import main
@@ -17,6 +17,7 @@ from sweeper.cli.common import (
     open_catalog,
     read_or_exit,
     rebuild_if_needed,
+    styled,
 )
 from sweeper.measure.point import Verdict
 from sweeper.plan import format_quantity
@@ -89,9 +90,9 @@ def show(run: str, runs_dir: str) -> None:
         table.add_row(f"instrument ({ident.get('role')})", f"{ident.get('resource')}  {ident.get('idn')}  "
                                                              f"{ident.get('driver')}")
     table.add_row("points", f"{len(frame)}")
-    table.add_row("seal", escape(seal.describe()))
+    table.add_row("seal", Text(seal.describe()))
     for n, gap in enumerate((meta.get("summary") or {}).get("interruptions") or [], start=1):
-        table.add_row(f"interruption {n}", escape(f"last write {gap.get('interrupted_utc')}, resumed "
+        table.add_row(f"interruption {n}", Text(f"last write {gap.get('interrupted_utc')}, resumed "
                                                   f"{gap.get('resumed_utc')}, gap {gap.get('gap_s')} s: "
                                                   f"{gap.get('reason')}"))
     console.print(table)
@@ -115,7 +116,7 @@ def verify(runs_dir: str) -> None:
     bad = [r for r in results if r.state != "ok"]
     for r in results:
         style = "green" if r.state == "ok" else "bold red"
-        console.print(f"[{style}]{r.state:10}[/] " + escape(f"{r.run_id}  {r.path}  {r.detail}"), soft_wrap=True)
+        console.print(styled((f"{r.state:10}", style), f" {r.run_id}  {r.path}  {r.detail}"))
     console.print(f"{len(results)} file(s) checked, {len(bad)} problem(s)")
     sys.exit(ExitCode.FAIL if bad else ExitCode.PASS)
 

@@ -18,6 +18,7 @@ from sweeper.cli.common import (
     checked_plan_or_exit,
     console,
     err_console,
+    styled,
 )
 from sweeper.measure.point import Verdict
 from sweeper.plan import format_quantity, parse_quantity
@@ -134,11 +135,11 @@ def repeat(plan_path: str, out_dir: str, count: int | None, every: str | None, f
     campaign_id = new_campaign_id()
     clock = clock_for(plan)
     planned = schedule.planned_sweeps()
-    console.print(f"[bold]{plan.name}[/]  campaign {campaign_id}: "
+    console.print(styled((plan.name, "bold"), f"  campaign {campaign_id}: "
                   f"{planned if planned is not None else 'as many'} sweep(s)"
                   + (f", one every {format_quantity(every_s, 'time')}" if every_s else ", back to back")
                   + (f", for {format_quantity(duration_s, 'time')}" if duration_s else "")
-                  + f"; each sweep about {report.duration_text}")
+                  + f"; each sweep about {report.duration_text}"))
     if isinstance(clock, SkippingClock):
         console.print("simulated bench: waits between sweeps are skipped (campaign clock jumps ahead)")
     requests = {"count": 0}

@@ -8,13 +8,22 @@ from pathlib import Path
 
 import click
 from rich.console import Console
+from rich.text import Text
 
 from sweeper.measure.point import Flag, Verdict
 from sweeper.plan import PlanError, load_plan
 from sweeper.run.outcome import ExitCode
 
-console = Console(highlight=False)
-err_console = Console(stderr=True, highlight=False, soft_wrap=True)
+# The one place consoles are made. Text from plans, serials, operators, instruments and files is
+# data: no console reads markup (`[bold]`, `[/]`) or emoji codes (`:x:`) in what it prints. Styles
+# are given as rich Text objects (`styled`), never spelled inside a string.
+console = Console(highlight=False, markup=False, emoji=False)
+err_console = Console(stderr=True, highlight=False, soft_wrap=True, markup=False, emoji=False)
+
+
+def styled(*parts: str | tuple[str, str]) -> Text:
+    """A line of literal text pieces, each a str or (text, style); nothing is read as markup."""
+    return Text.assemble(*parts)
 
 SAFETY = (
     "Safety: mains-powered DUTs and instruments can carry lethal voltages. Most bench scopes tie "

@@ -6,6 +6,7 @@ import sys
 
 import click
 from rich.table import Table
+from rich.text import Text
 
 from sweeper.cli import main
 from sweeper.cli.common import console, err_console
@@ -134,7 +135,7 @@ def try_(file: str, resource: str, backend: str, timeout_s: float | None, freque
     table.add_column("s", justify="right")
     for step in steps:
         style = STATUS_STYLE.get(step.status, "")
-        table.add_row(step.name, f"[{style}]{step.status}[/]", step.detail.replace("[", "\\["), f"{step.seconds:.3f}")
+        table.add_row(step.name, Text(step.status, style=style), step.detail, f"{step.seconds:.3f}")
     console.print(table)
     failed = [s.name for s in steps if s.status == "failed"]
     if any_failed(steps):

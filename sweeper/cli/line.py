@@ -22,6 +22,7 @@ from sweeper.cli.common import (
     checked_plan_or_exit,
     console,
     err_console,
+    styled,
 )
 from sweeper.measure.point import Verdict
 from sweeper.plan import format_quantity
@@ -92,8 +93,8 @@ def result_panel(test: BoardTest, outcome: RunOutcome) -> Panel:
         parts.append(Align.center(table))
     if len(bad) > FAILING_SHOWN:
         parts.append(Text(f"... and {len(bad) - FAILING_SHOWN} more failing frequencies", justify="center"))
-    return Panel(Group(*parts), style=_RESULT_STYLE[test.result], title=f"board {test.serial}",
-                 subtitle=test.run_id, padding=(1, 2))
+    return Panel(Group(*parts), style=_RESULT_STYLE[test.result], title=Text(f"board {test.serial}"),
+                 subtitle=Text(test.run_id), padding=(1, 2))
 
 
 def render_summary(summary: ShiftSummary) -> None:
@@ -109,7 +110,7 @@ def render_summary(summary: ShiftSummary) -> None:
         table.add_row(str(i), t.time_utc[11:19], t.serial, result, "yes" if t.retest else "",
                       str(len(t.failing_hz)) if t.failing_hz else "", t.run_id)
     console.print(table)
-    console.print(Panel(tally_line(summary.tally), title=f"end of shift ({summary.ended_by})"))
+    console.print(Panel(tally_line(summary.tally), title=Text(f"end of shift ({summary.ended_by})")))
 
 
 @main.command()
@@ -137,8 +138,8 @@ def line(plan_path: str, out_dir: str, summary_out: str | None, waveforms: bool)
         err_console.print(f"--summary-out: {summary_out!r} needs the suffix .csv or .json", markup=False)
         sys.exit(ExitCode.BAD_INPUT)
     plan, report = checked_plan_or_exit(plan_path)
-    console.print(f"[bold]{plan.name}[/]  {plan.dut.board}: production line, {report.points} points per board, "
-                  f"about {report.duration_text} each; runs filed in {out_dir}")
+    console.print(styled((plan.name, "bold"), f"  {plan.dut.board}: production line, {report.points} points per "
+                                              f"board, about {report.duration_text} each; runs filed in {out_dir}"))
     stdin = click.get_text_stream("stdin")
     typed = stdin.isatty()
 

@@ -8,7 +8,7 @@ import sys
 import click
 
 from sweeper.cli import main
-from sweeper.cli.common import RUNS_OPTION, console, err_console, exit_after_run, flag_names
+from sweeper.cli.common import RUNS_OPTION, console, err_console, exit_after_run, flag_names, styled
 from sweeper.measure.point import Point, Verdict
 from sweeper.plan import format_quantity
 from sweeper.verdict import VERDICT_LABELS
@@ -39,7 +39,7 @@ def resume(run: str, runs_dir: str, plan_path: str | None, salvage: bool) -> Non
     signal.signal(signal.SIGTERM, on_term)
 
     def on_start(run_id: str, freqs, resumed_at: int) -> None:
-        console.print(f"[bold]resuming {run_id}[/] at point {resumed_at + 1} of {len(freqs)}")
+        console.print(styled((f"resuming {run_id}", "bold"), f" at point {resumed_at + 1} of {len(freqs)}"))
 
     def on_point(p: Point) -> None:
         label = VERDICT_LABELS[Verdict(p.verdict)]

@@ -4,12 +4,10 @@ from __future__ import annotations
 
 import math
 import signal
-import sys
 from pathlib import Path
 
 import click
 import numpy as np
-from rich.markup import escape
 from rich.panel import Panel
 from rich.progress import (
     BarColumn,
@@ -20,6 +18,7 @@ from rich.progress import (
     TimeRemainingColumn,
 )
 from rich.table import Table
+from rich.text import Text
 
 from sweeper.cli import main
 from sweeper.cli.common import (
@@ -30,6 +29,7 @@ from sweeper.cli.common import (
     err_console,
     exit_after_run,
     flag_names,
+    styled,
 )
 from sweeper.measure.point import Flag, Point, Verdict
 from sweeper.plan import format_quantity
@@ -42,12 +42,14 @@ def check(plan_path: str) -> None:
     """Validate a test plan and show what the board should do and how long the sweep takes."""
 
     plan, report = checked_plan_or_exit(plan_path)
-    console.print(f"[bold]{plan.name}[/]  {plan.dut.board} ({plan.dut.serial})  plan sha256 {plan.sha256[:12]}")
+    console.print(styled((plan.name, "bold"), f"  {plan.dut.board} ({plan.dut.serial})  plan sha256 {plan.sha256[:12]}"))
     console.print(
         f"{report.points} points, {format_quantity(report.start_hz, 'frequency')} to "
         f"{format_quantity(report.stop_hz, 'frequency')}, {plan.bench.kind} bench, {plan.bench.mode} mode; "
         f"estimated duration {report.duration_text}"
     )
+    for warning in report.warnings:
+        err_console.print(f"warning: {warning}", style="yellow")
     for key, value in report.figures.items():
         if isinstance(value, float) and math.isfinite(value):
             console.print(f"  {key}: {value:.6g}")
@@ -63,8 +65,8 @@ def check(plan_path: str) -> None:
             f"{row['phase_lo_deg']:.2f} .. {row['phase_hi_deg']:.2f}",
         )
     console.print(table)
-    console.print(Panel(SAFETY, title="Safety", border_style="yellow"))
-    console.print("[green]plan is sound[/]")
+    console.print(Panel(SAFETY, title=Text("Safety"), border_style="yellow"))
+    console.print("plan is sound", style="green")
 
 
 @main.command()
@@ -77,8 +79,8 @@ def run(plan_path: str, out_dir: str, waveforms: bool) -> None:
     from sweeper.run.runner import execute_run
 
     plan, report = checked_plan_or_exit(plan_path)
-    console.print(f"[bold]{plan.name}[/]  {plan.dut.board} ({plan.dut.serial})  {report.points} points, "
-                  f"estimated {report.duration_text}")
+    console.print(styled((plan.name, "bold"), f"  {plan.dut.board} ({plan.dut.serial})  {report.points} points, "
+                                              f"estimated {report.duration_text}"))
     stop_requested = {"flag": False}
 
     def on_term(signum, frame):  # noqa: ARG001 - signal handler signature
@@ -86,10 +88,10 @@ def run(plan_path: str, out_dir: str, waveforms: bool) -> None:
 
     signal.signal(signal.SIGTERM, on_term)
     progress = Progress(
-        TextColumn("[bold]{task.description}"),
+        TextColumn("{task.description}", style="bold", markup=False),
         BarColumn(),
         MofNCompleteColumn(),
-        TextColumn("{task.fields[freq]}"),
+        TextColumn("{task.fields[freq]}", markup=False),
         TimeElapsedColumn(),
         TimeRemainingColumn(),
         console=console,
@@ -151,8 +153,9 @@ def render_outcome(outcome) -> None:
         measured = sum(1 for p in pts if not (p.flags & Flag.SKIPPED))
         meaning = (f"run {outcome.status} after {measured} measured point(s); "
                    f"finish it with: sweeper resume {outcome.journal_path}")
-    console.print(Panel(escape(f"{VERDICT_LABELS[v]}  —  {meaning}"), style=VERDICT_STYLE[v],
-                        title=f"verdict ({outcome.status})"))
+    console.print(Panel(f"{VERDICT_LABELS[v]}  —  {meaning}", style=VERDICT_STYLE[v],
+                        title=Text(f"verdict ({outcome.status})")))
+    output_doubt(outcome)
     if outcome.journal_path.exists():
         console.print(f"run file: {outcome.run_path}")
         console.print(f"journal:  {outcome.journal_path}")
@@ -160,3 +163,11 @@ def render_outcome(outcome) -> None:
         console.print("nothing was written: the run stopped before its first record")
 
 
+
+
+def output_doubt(outcome) -> None:
+    """Say in red when the source's output could not be confirmed off at the end of the run."""
+    if outcome.output_off is False or outcome.sim_output_on:
+        err_console.print("source: the generator did not confirm 'output off' at the end of the run; its output "
+                          "may still be ON. Switch it off at the instrument before touching the DUT.",
+                          style="bold red")

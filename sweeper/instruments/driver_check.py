@@ -68,7 +68,8 @@ def check_driver(path: Path | str) -> DriverCheck:
         result.problems = list(exc.problems)
         return result
     text = path.read_text(encoding="utf-8")
-    result.problems = render_problems(loaded.driver, text, str(path))
+    result.problems = render_problems(loaded.driver, text, str(path)) + output_off_problems(loaded.driver, text,
+                                                                                           str(path))
     result.warnings = lint(loaded.driver, text, str(path))
     if not result.problems:
         result.loaded = loaded
@@ -97,6 +98,33 @@ def render_problems(driver: DriverFile, text: str, file: str) -> list[Problem]:
                 problems.append(locate_in_text(text, file, (*loc, i, kind), "bad_template",
                                                f"does not render with example values ({exc})"))
     return problems
+
+
+_OFF_WORDS = {"OFF", "0", "DIS", "DISABLE", "DISABLED", "FALSE", "STOP", "ABORT"}
+_ON_WORDS = {"ON", "1", "ENABLE", "ENABLED", "TRUE", "START", "RUN"}
+
+
+def output_off_problems(driver: DriverFile, text: str, file: str) -> list[Problem]:
+    """A source's output_off must exist and switch off: rendered, it needs an off word (OFF, 0, ...)
+    as a token, no on word (ON, 1, ...) as the last token of a message, and must differ from output_on."""
+    if driver.role != "source":
+        return []
+    ops = driver.section.operations
+    loc = ("source", "operations", "output_off")
+    sent = [render(step.write if step.write is not None else (step.query or ""), EXAMPLE_VALUES)
+            for step in ops.output_off]
+    if not any(s.strip() for s in sent):
+        return [locate_in_text(text, file, loc, "output_off_empty",
+                               "sends nothing: the source's output would never be switched off")]
+    on = [render(step.write if step.write is not None else (step.query or ""), EXAMPLE_VALUES)
+          for step in ops.output_on]
+    tokens = [t.upper() for s in sent for t in re.split(r"[\s:,]+", s) if t]
+    last = [re.split(r"[\s:,]+", m.strip())[-1].upper() for s in sent for m in s.split(";") if m.strip()]
+    if sent == on or any(t in _ON_WORDS for t in last) or not any(t in _OFF_WORDS for t in tokens):
+        return [locate_in_text(text, file, loc, "output_off_not_off",
+                               f"sends {'; '.join(sent)!r}, which does not switch the output off (expected a "
+                               f"command ending in OFF or 0, different from output_on)")]
+    return []
 
 
 def lint(driver: DriverFile, text: str, file: str) -> list[Problem]:

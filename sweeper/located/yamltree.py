@@ -177,12 +177,25 @@ class YamlTree:
         if node.tag not in _SCALAR_TAGS:
             self._bad_tag(node, path)
             return node.value
+        if self._unpaired_surrogate(node, path, node.value):
+            return ""
         try:
             return self._constructor.construct_object(node)
         except (yaml.YAMLError, ValueError, OverflowError) as exc:
             self.problem(node, path, "bad_yaml_value", self.written(node), f"is not a valid YAML value ({exc})")
             self.broken.add(path)
             return node.value
+
+    def _unpaired_surrogate(self, node: Node, path: Loc, text: str) -> bool:
+        """Refuse text holding an unpaired UTF-16 surrogate (a "\\ud800" escape): it is no character,
+        cannot be stored as UTF-8 nor printed. True when refused (a problem recorded)."""
+        for position, char in enumerate(text):
+            if 0xD800 <= ord(char) <= 0xDFFF:
+                self.problem(node, path, "bad_character", f"U+{ord(char):04X}", f"holds U+{ord(char):04X} at "
+                             f"position {position + 1}, an unpaired surrogate that is not a character")
+                self.broken.add(path)
+                return True
+        return False
 
     def _mapping(self, node: MappingNode, path: Loc, depth: int, ancestors: frozenset[int]) -> dict:
         explicit: list[tuple[Node, Node]] = []
@@ -199,6 +212,8 @@ class YamlTree:
                 self.problem(key_node, path, "key_not_text", self.written(key_node), "a key must be plain text")
                 continue
             key = key_node.value
+            if self._unpaired_surrogate(key_node, path, key):
+                continue
             if key in first_seen:
                 first = first_seen[key].start_mark
                 self.problem(key_node, (*path, key), "duplicate_key", key,

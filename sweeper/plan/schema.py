@@ -102,7 +102,32 @@ def _finite(value: float) -> float:
     return value
 
 
-Int = Annotated[int, BeforeValidator(_no_bool)]
+#: Largest magnitude of any integer in a plan: far above every count a bench uses, far below
+#: what overflows a C long or a date.
+MAX_INT = 10**12
+#: At most this many frequency points per sweep (a point's record is about 1 kB in memory and on
+#: disk with its prediction and band: 20000 points stay below a few tens of MB).
+MAX_POINTS = 20_000
+#: Monte Carlo: at most this many samples, and samples x points at most MAX_MC_CELLS (each cell
+#: holds a complex response, 16 bytes: 5e7 cells are 800 MB at most).
+MAX_MC_SAMPLES = 100_000
+MAX_MC_CELLS = 50_000_000
+#: Component values a bench can hold: R 1 uOhm..1 TOhm, C 1 fF..10 F, L 1 pH..10 kH.
+COMPONENT_RANGES = {"resistance": (1e-6, 1e12), "capacitance": (1e-15, 10.0), "inductance": (1e-12, 1e4)}
+#: Frequencies in a plan: 1 mHz to 1 THz.
+MIN_FREQUENCY_HZ, MAX_FREQUENCY_HZ = 1e-3, 1e12
+#: The longest settle time, capture count or duration a plan may ask for.
+MAX_SETTLE_S = 3600.0
+MAX_DURATION_CEILING_S = 30 * 24 * 3600.0
+
+
+def _int_range(value: int) -> int:
+    if abs(value) > MAX_INT:
+        raise RuleError(value, f"is out of range (at most {MAX_INT:.0e} in magnitude)")
+    return value
+
+
+Int = Annotated[int, BeforeValidator(_no_bool), AfterValidator(_int_range)]
 Float = Annotated[float, BeforeValidator(_no_bool), AfterValidator(_finite)]
 Text = Annotated[str, AfterValidator(_non_blank)]
 
@@ -228,7 +253,7 @@ class InstrumentRef(_Section):
 
     resource: Text
     driver: Text
-    timeout_s: Annotated[TimeS, _above(0.0, "time")] = Field(5.0, alias="timeout")
+    timeout_s: Annotated[TimeS, _above(0.0, "time"), _at_most(600.0, "time")] = Field(5.0, alias="timeout")
 
 
 class SimProbe(_Section):
@@ -359,14 +384,21 @@ class Stimulus(_Section):
 class Sweep(_Section):
     """The frequency grid: start, stop and a density, or an explicit list."""
 
-    start_hz: Annotated[FrequencyHz, _above(0.0, "frequency")] | None = Field(None, alias="start")
-    stop_hz: Annotated[FrequencyHz, _above(0.0, "frequency")] | None = Field(None, alias="stop")
-    points_per_decade: Annotated[Float, _above(0.0)] | None = None
-    points: Annotated[Int, _above(2, inclusive=True)] | None = None
+    start_hz: Annotated[FrequencyHz, _above(MIN_FREQUENCY_HZ, "frequency", inclusive=True),
+                        _at_most(MAX_FREQUENCY_HZ, "frequency")] | None = Field(None, alias="start")
+    stop_hz: Annotated[FrequencyHz, _above(MIN_FREQUENCY_HZ, "frequency", inclusive=True),
+                       _at_most(MAX_FREQUENCY_HZ, "frequency")] | None = Field(None, alias="stop")
+    points_per_decade: Annotated[Float, _above(0.0), _at_most(1000.0)] | None = None
+    points: Annotated[Int, _above(2, inclusive=True), _at_most(MAX_POINTS)] | None = None
+    # the longest sweep the plan expects; `check` warns above it (the ceiling is refused)
+    max_duration_s: Annotated[TimeS, _above(0.0, "time"), _at_most(MAX_DURATION_CEILING_S, "time")] = Field(
+        24 * 3600.0, alias="max_duration")
     spacing: Literal["log", "linear"] = "log"
     direction: Literal["up", "down"] = "up"
     frequencies_hz: (
-        Annotated[list[Annotated[FrequencyHz, _above(0.0, "frequency")]], AfterValidator(_non_empty_list)] | None
+        Annotated[list[Annotated[FrequencyHz, _above(MIN_FREQUENCY_HZ, "frequency", inclusive=True),
+                                 _at_most(MAX_FREQUENCY_HZ, "frequency")]],
+                  AfterValidator(_non_empty_list), Field(max_length=MAX_POINTS)] | None
     ) = Field(None, alias="frequencies")
 
     @model_validator(mode="after")
@@ -422,14 +454,16 @@ class TargetUncertainty(_Section):
 class Acquisition(_Section):
     """How each point is captured: window length, settling, averaging, fit."""
 
-    min_cycles: Annotated[Float, _above(0.0)] = 8.0
+    # a sine fit needs at least one whole cycle in its record; 1e6 cycles is far beyond any need
+    min_cycles: Annotated[Float, _above(1.0, inclusive=True), _at_most(1e6)] = 8.0
     # A four-parameter sine fit has four unknowns, so it needs at least four samples.
-    min_samples: Annotated[Int, _above(4, inclusive=True)] = 2000
-    settle_s: Annotated[TimeS, _above(0.0, "time", inclusive=True)] = Field(0.0, alias="settle_time")
-    settle_cycles: Annotated[Float, _above(0.0, inclusive=True)] = 2.0
-    settle_time_constants: Annotated[Float, _above(0.0, inclusive=True)] = 5.0
-    averages: Annotated[Int, _above(1, inclusive=True)] = 1
-    max_averages: Annotated[Int, _above(1, inclusive=True)] = 8  # raised to `averages` when not given
+    min_samples: Annotated[Int, _above(4, inclusive=True), _at_most(100_000_000)] = 2000
+    settle_s: Annotated[TimeS, _above(0.0, "time", inclusive=True), _at_most(MAX_SETTLE_S, "time")] = Field(
+        0.0, alias="settle_time")
+    settle_cycles: Annotated[Float, _above(0.0, inclusive=True), _at_most(1e6)] = 2.0
+    settle_time_constants: Annotated[Float, _above(0.0, inclusive=True), _at_most(100.0)] = 5.0
+    averages: Annotated[Int, _above(1, inclusive=True), _at_most(10_000)] = 1
+    max_averages: Annotated[Int, _above(1, inclusive=True), _at_most(10_000)] = 8  # raised to `averages` when not given
     target_uncertainty: TargetUncertainty | None = None
     autorange: bool = True
     fit: Literal["three-parameter", "four-parameter"] = "three-parameter"
@@ -464,7 +498,8 @@ class Component(_Section):
     """A component's nominal value (SI: Ohm, F or H) and its tolerance (fraction)."""
 
     value: ComponentValue
-    tolerance_frac: Annotated[Fraction, _above(0.0, "percent", inclusive=True), _at_most(1.0, "percent")] = Field(
+    # below 100 %: a part at -100 % has no value at all
+    tolerance_frac: Annotated[Fraction, _above(0.0, "percent", inclusive=True), _below(1.0, "percent")] = Field(
         0.0, alias="tolerance"
     )
 
@@ -523,7 +558,15 @@ def _component_findings(
         try:
             value_si = parse_quantity(value, spec.kind)
             zero_ok = not spec.required and spec.default == 0.0
-            if value_si < 0 or (value_si == 0 and not zero_ok):
+            open_ok = not spec.required and math.isinf(spec.default)
+            low, high = COMPONENT_RANGES.get(spec.kind, (0.0, math.inf))
+            if math.isinf(value_si) and value_si > 0 and not open_ok:
+                findings.append(Finding(loc, f"must be finite (at most {format_quantity(high, spec.kind)})",
+                                        follows_value=True, kind="out_of_range"))
+            elif math.isfinite(value_si) and value_si > 0 and not low <= value_si <= high:
+                findings.append(Finding(loc, f"must be within {format_quantity(low, spec.kind)} to "
+                                        f"{format_quantity(high, spec.kind)}", follows_value=True, kind="out_of_range"))
+            elif value_si < 0 or (value_si == 0 and not zero_ok):
                 findings.append(
                     Finding(
                         loc,
@@ -613,7 +656,7 @@ class Model(_Section):
                                     f"{where}", at="key", kind="conflict"))
             data = {key: value for key, value in data.items() if key != "components"}
         specs = COMPONENTS.get(circuit) if isinstance(circuit, str) else None
-        raw = data.get("components")
+        raw = data.get("components", {})
         if specs is not None and isinstance(raw, dict):
             prepared, found = _component_findings(raw, specs, circuit, ("components",), nested=True)
             findings.extend(found)
@@ -681,7 +724,14 @@ class Model(_Section):
                         Finding((self._alias(name),), "is only for circuit 'rational'", at="key", kind="conflict")
                     )
             return findings
+        if not 1e-15 <= abs(self.gain) <= 1e15:
+            findings.append(Finding(("gain",), "must be non-zero, 1e-15 to 1e15 in magnitude (0 is no response "
+                                    "at all: minus infinity dB)", follows_value=True, kind="out_of_range"))
         for alias, roots in (("zeros", self.zeros_hz), ("poles", self.poles_hz)):
+            for index, root in enumerate(roots):
+                if not (abs(root.real) <= MAX_FREQUENCY_HZ and abs(root.imag) <= MAX_FREQUENCY_HZ):
+                    findings.append(Finding((alias, index), f"must lie within {MAX_FREQUENCY_HZ:g} Hz of the origin",
+                                            follows_value=True, kind="out_of_range"))
             for index, root in enumerate(roots):
                 if root.imag != 0 and roots.count(root.conjugate()) != roots.count(root):
                     findings.append(
@@ -759,7 +809,7 @@ class Mask(_Section):
 class MonteCarlo(_Section):
     """Settings for a Monte Carlo tolerance band."""
 
-    samples: Annotated[Int, _above(2, inclusive=True)] = 2000
+    samples: Annotated[Int, _above(2, inclusive=True), _at_most(MAX_MC_SAMPLES)] = 2000
     percentiles: tuple[Float, Float] = (0.5, 99.5)
     seed: Annotated[Int, _above(0, inclusive=True)] = 0
     distribution: Literal["uniform", "normal"] = "uniform"
@@ -783,7 +833,7 @@ class Limits(_Section):
     decision_rule: Literal["simple", "guarded"] = "guarded"
     # k of U = k u when given (an explicit override); by default k is Student's t at
     # coverage_probability with each point's effective degrees of freedom (GUM G.3, G.4).
-    coverage_factor: Annotated[Float, _above(0.0)] | None = None
+    coverage_factor: Annotated[Float, _above(0.0), _at_most(10.0)] | None = None
     coverage_probability: Annotated[Fraction, _above(0.5, "percent"), _below(1.0, "percent")] = 0.95
 
     @property
@@ -858,6 +908,31 @@ class Plan(_Section):
         findings = [Finding(loc, f"lies outside the golden curve's {span} ({curve.file})", follows_value=True,
                             kind="out_of_range")
                     for loc, f in checks if f is not None and not bool(curve.covers(f))]
+        if findings:
+            raise_located(findings)
+        return self
+
+    @model_validator(mode="after")
+    def _memory(self) -> Plan:
+        """Monte Carlo samples times points bounded (the band is held in memory)."""
+        sweep = self.sweep
+        if sweep.frequencies_hz is not None:
+            points = len(sweep.frequencies_hz)
+        elif sweep.points is not None:
+            points = sweep.points
+        elif sweep.points_per_decade is not None and sweep.start_hz and sweep.stop_hz:
+            points = int(min(MAX_POINTS + 1, math.ceil(math.log10(sweep.stop_hz / sweep.start_hz)
+                                                         * sweep.points_per_decade) + 1))
+        else:
+            return self
+        findings = []
+        if points > MAX_POINTS:
+            findings.append(Finding(("sweep", "points_per_decade"), f"gives {points - 1}+ points; expected at most "
+                                    f"{MAX_POINTS} per sweep", kind="out_of_range"))
+        if self.limits.band == "monte-carlo" and self.limits.monte_carlo.samples * points > MAX_MC_CELLS:
+            findings.append(Finding(("limits", "monte_carlo", "samples"), f"times {points} points exceeds "
+                                    f"{MAX_MC_CELLS:.0e} responses held in memory", follows_value=True,
+                                    kind="out_of_range"))
         if findings:
             raise_located(findings)
         return self

@@ -17,6 +17,7 @@ from sweeper.instruments.limits import bench_limits
 from sweeper.instruments.roles import ScopeLimits
 from sweeper.measure.schedule import capture_window, settle_time_s
 from sweeper.measure.settings import EngineSettings
+from sweeper.plan.schema import MAX_DURATION_CEILING_S
 from sweeper.run.spec import run_spec
 
 if TYPE_CHECKING:
@@ -33,6 +34,7 @@ class CheckReport:
     """What `sweeper check` found and predicts."""
 
     problems: list[str] = field(default_factory=list)
+    warnings: list[str] = field(default_factory=list)
     points: int = 0
     start_hz: float = math.nan
     stop_hz: float = math.nan
@@ -115,6 +117,13 @@ def check_plan(plan: "Plan", rows: int = 7) -> CheckReport:
                 f"meter's {meter.frequency_min_hz:g} Hz to {meter.frequency_max_hz:g} Hz")
     report.figures = {k: float(v) for k, v in figures(spec.model).items()}
     report.duration_s = estimate_duration_s(freqs, spec.settings, scope_limits)
+    ceiling = plan.sweep.max_duration_s
+    if not math.isfinite(report.duration_s) or report.duration_s > MAX_DURATION_CEILING_S:
+        report.problems.append(f"{locate(plan, 'sweep')}: an estimated {report.duration_text} per sweep; expected "
+                               f"at most {MAX_DURATION_CEILING_S / 86400:g} days (check settle and capture settings)")
+    elif report.duration_s > ceiling:
+        report.warnings.append(f"{locate(plan, 'sweep.max_duration')}: the estimated {report.duration_text} "
+                               f"exceeds max_duration ({ceiling:g} s)")
     pick = np.unique(np.linspace(0, len(freqs) - 1, min(rows, len(freqs))).round().astype(int))
     for i in pick:
         report.table.append({"frequency_hz": float(freqs[i]), **spec.limits.at(int(i))})

@@ -132,7 +132,7 @@ CASES = [
         "unknown key 'amplitude_vpp'",
     ),
     Case("start >= stop", edit("  start: 20 Hz", "  start: 20 kHz"), "sweep.stop", "stop:", "20 kHz", "stop (20 kHz) must be above start (20 kHz)"),
-    Case("non-positive frequency", edit("  start: 20 Hz", "  start: -20 Hz"), "sweep.start", "start:", "-20 Hz", "must be above 0 Hz"),
+    Case("non-positive frequency", edit("  start: 20 Hz", "  start: -20 Hz"), "sweep.start", "start:", "-20 Hz", "must be at least 1 mHz"),
     Case("points < 2", edit("  points: 31", "  points: 1"), "sweep.points", "points:", "1", "must be at least 2"),
     Case(
         "negative component",
@@ -148,7 +148,7 @@ CASES = [
         "model.components.C.tolerance",
         "C: {value",
         "150 %",
-        "must be at most 100 %",
+        "must be below 100 %",
     ),
     Case(
         "tolerance below 0 %",
