@@ -54,3 +54,31 @@ def test_same_plan_two_stations_same_plan_hash_both_station_hashes(tmp_path):
     assert bench_a.scope.resource.endswith("5026::SOCKET") and bench_b.scope.resource.endswith("5027::SOCKET")
     assert bench_a.source.driver == str(tmp_path / "gen.yaml") and bench_a.visa_library == "@py"
     assert bench_a.source.timeout_s == 3.0
+
+
+def test_cli_bad_station_file_exits_2_with_located_message(tmp_path):
+    from click.testing import CliRunner
+
+    from sweeper.cli import main
+
+    path = tmp_path / "s.yaml"
+    path.write_text(STATION_A.replace("timeout: 3", "timeout: 0"))
+    result = CliRunner().invoke(main, ["check", "configs/rc-antialias.yaml", "--station", str(path)])
+    assert result.exit_code == 2, result.output
+    assert f"{path}:4:" in result.output and "instruments.source.timeout" in result.output
+    assert "Traceback" not in result.output
+
+
+def test_plan_metadata_records_station_file_and_hash(tmp_path):
+    from sweeper.run.spec import plan_metadata
+
+    path = tmp_path / "a.yaml"
+    path.write_text(STATION_A)
+    plan = load_plan("configs/rc-antialias.yaml")
+    station = load_station(path)
+    plan.bench = bench_with_station(plan.bench, station)
+    plan._station = station
+    meta = plan_metadata(plan)
+    assert meta["station_sha256"] == hashlib.sha256(path.read_bytes()).hexdigest()
+    assert meta["station_yaml"] == STATION_A and meta["station_path"] == str(path)
+    assert meta["plan_sha256"] == hashlib.sha256(open("configs/rc-antialias.yaml", "rb").read()).hexdigest()
