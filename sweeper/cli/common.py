@@ -53,14 +53,27 @@ def load_plan_or_exit(plan_path: str):
         sys.exit(ExitCode.BAD_INPUT)
 
 
-def checked_plan_or_exit(plan_path: str):
-    """Load a plan and check it against its drivers; print every problem and exit 2 if any.
+def checked_plan_or_exit(plan_path: str, station_path: str | None = None):
+    """Load a plan (with the station file's instruments when one is named) and check the pair
+    against the drivers; print every problem and exit 2 if any.
 
     Returns (plan, check report) for a sound plan.
     """
     from sweeper.run.check import check_plan
 
     plan = load_plan_or_exit(plan_path)
+    if station_path:
+        from sweeper.station import StationError, bench_with_station, load_station
+
+        try:
+            station = load_station(station_path)
+        except StationError as exc:
+            for problem in exc.problems:
+                err_console.print(str(problem), markup=False)
+            err_console.print(f"{len(exc.problems)} problem(s) in {station_path}; nothing was run.", markup=False)
+            sys.exit(ExitCode.BAD_INPUT)
+        plan.bench = bench_with_station(plan.bench, station)
+        plan._station = station
     report = check_plan(plan)
     if report.problems:
         for problem in report.problems:

@@ -38,10 +38,12 @@ from sweeper.verdict import VERDICT_LABELS, VERDICT_MEANINGS
 
 @main.command()
 @click.argument("plan_path", type=click.Path(dir_okay=False))
-def check(plan_path: str) -> None:
+@click.option("--station", "station_path", envvar="SWEEPER_STATION", default=None, type=click.Path(dir_okay=False),
+              help="Station file giving the instruments by role (also $SWEEPER_STATION).")
+def check(plan_path: str, station_path: str | None) -> None:
     """Validate a test plan and show what the board should do and how long the sweep takes."""
 
-    plan, report = checked_plan_or_exit(plan_path)
+    plan, report = checked_plan_or_exit(plan_path, station_path)
     console.print(styled((plan.name, "bold"), f"  {plan.dut.board} ({plan.dut.serial})  plan sha256 {plan.sha256[:12]}"))
     console.print(
         f"{report.points} points, {format_quantity(report.start_hz, 'frequency')} to "
@@ -74,11 +76,13 @@ def check(plan_path: str) -> None:
 @click.option("--out", "out_dir", default="runs", show_default=True, type=click.Path(file_okay=False),
               help="Folder for run files and journals.")
 @click.option("--waveforms/--no-waveforms", default=False, help="Also store every capture's raw waveforms.")
-def run(plan_path: str, out_dir: str, waveforms: bool) -> None:
+@click.option("--station", "station_path", envvar="SWEEPER_STATION", default=None, type=click.Path(dir_okay=False),
+              help="Station file giving the instruments by role (also $SWEEPER_STATION).")
+def run(plan_path: str, out_dir: str, waveforms: bool, station_path: str | None) -> None:
     """Run a test plan's sweep, judge it and file the run."""
     from sweeper.run.runner import execute_run
 
-    plan, report = checked_plan_or_exit(plan_path)
+    plan, report = checked_plan_or_exit(plan_path, station_path)
     console.print(styled((plan.name, "bold"), f"  {plan.dut.board} ({plan.dut.serial})  {report.points} points, "
                                               f"estimated {report.duration_text}"))
     stop_requested = {"flag": False}

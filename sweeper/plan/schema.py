@@ -892,6 +892,7 @@ class Plan(_Section):
     _path: Path | None = PrivateAttr(None)
     _locations: dict[str, tuple[int, int]] = PrivateAttr(default_factory=dict)
     _model_files: dict[str, dict[str, str]] = PrivateAttr(default_factory=dict)
+    _station: Any = PrivateAttr(None)  # the station profile the bench came from (sweeper.station), or None
 
     @model_validator(mode="after")
     def _golden_range(self) -> Plan:

@@ -154,7 +154,16 @@ def plan_metadata(plan: Plan) -> dict[str, Any]:
         "decision_rule": plan.limits.decision_rule,
         "coverage_factor": plan.limits.coverage_factor,
         "coverage_probability": plan.limits.coverage_probability,
+        **_station_metadata(plan._station),
     }
+
+
+def _station_metadata(station: Any) -> dict[str, Any]:
+    """The station file's name, path, text and SHA-256 for the run file ({} without a station)."""
+    if station is None:
+        return {}
+    return {"station_name": station.name, "station_path": str(station.path or ""),
+            "station_yaml": station.text, "station_sha256": station.sha256}
 
 
 @dataclass(frozen=True)
